@@ -1,0 +1,158 @@
+//! Presets: a chain, export settings and a seed, as versioned JSON shared by the page and the CLI.
+//!
+//! ```json
+//! {
+//!   "format": "stairstep-preset",
+//!   "version": 1,
+//!   "name": "8-bit, TPDF",
+//!   "seed": 1,
+//!   "stages": [ { "kind": "quantize", "bits": 8, "dither": "tpdf" } ],
+//!   "export": { "type": "wav", "encoding": "pcm-u8" }
+//! }
+//! ```
+//! Every stage object has `kind` and an optional `bypass` (default false); its other fields are the stage's
+//! parameters, each with a default. Unknown fields are errors, so a typo never passes silently.
+
+use crate::chain::validate_stage;
+use crate::error::{Error, Result};
+use crate::io::ExportFormat;
+use crate::quantize::QuantizeParams;
+use serde::{Deserialize, Serialize};
+
+/// Value of the `format` field.
+pub const PRESET_FORMAT: &str = "stairstep-preset";
+/// Newest preset version this build reads and the one it writes.
+pub const PRESET_VERSION: u32 = 1;
+
+/// One stage of the chain and its parameters.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "kind", rename_all = "kebab-case")]
+pub enum StageSpec {
+    /// Uniform quantizer (with dither and noise shaping).
+    Quantize(QuantizeParams),
+}
+
+/// A stage in a preset, with its bypass flag.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct StageSlot {
+    /// When true the stage is kept in the chain but not applied.
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub bypass: bool,
+    /// The stage.
+    #[serde(flatten)]
+    pub stage: StageSpec,
+}
+
+impl From<StageSpec> for StageSlot {
+    fn from(stage: StageSpec) -> Self {
+        StageSlot { bypass: false, stage }
+    }
+}
+
+/// A complete preset.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Preset {
+    /// Always [`PRESET_FORMAT`].
+    pub format: String,
+    /// Schema version, 1 to [`PRESET_VERSION`].
+    pub version: u32,
+    /// A name for people.
+    #[serde(default)]
+    pub name: String,
+    /// Seed of every random generator in the chain (dither). Same preset and seed, same bytes.
+    #[serde(default = "default_seed")]
+    pub seed: u64,
+    /// The chain, in processing order.
+    #[serde(default)]
+    pub stages: Vec<StageSlot>,
+    /// How to write the result.
+    #[serde(default)]
+    pub export: ExportFormat,
+}
+
+fn default_seed() -> u64 {
+    1
+}
+
+impl Default for Preset {
+    fn default() -> Self {
+        Preset {
+            format: PRESET_FORMAT.into(),
+            version: PRESET_VERSION,
+            name: String::new(),
+            seed: default_seed(),
+            stages: Vec::new(),
+            export: ExportFormat::default(),
+        }
+    }
+}
+
+impl Preset {
+    /// A preset with these stages and default everything else.
+    pub fn with_stages(name: &str, stages: Vec<StageSpec>) -> Self {
+        Preset { name: name.into(), stages: stages.into_iter().map(Into::into).collect(), ..Default::default() }
+    }
+
+    /// Parses and validates a preset.
+    pub fn from_json(text: &str) -> Result<Self> {
+        let p: Preset = serde_json::from_str(text).map_err(|e| Error::Preset(e.to_string()))?;
+        p.validate()?;
+        Ok(p)
+    }
+
+    /// Pretty JSON.
+    pub fn to_json(&self) -> String {
+        serde_json::to_string_pretty(self).expect("a preset always serialises")
+    }
+
+    /// Checks the header and every stage; errors name the field, e.g. `stages[1].bits`.
+    pub fn validate(&self) -> Result<()> {
+        if self.format != PRESET_FORMAT {
+            return Err(Error::param("format", format!("{:?}", self.format), format!("{PRESET_FORMAT:?}")));
+        }
+        if self.version == 0 || self.version > PRESET_VERSION {
+            return Err(Error::param("version", self.version, format!("1..={PRESET_VERSION}")));
+        }
+        for (i, slot) in self.stages.iter().enumerate() {
+            validate_stage(&slot.stage).map_err(|e| e.at(&format!("stages[{i}]")))?;
+        }
+        self.export.validate().map_err(|e| e.at("export"))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn round_trips_through_json() {
+        let p = Preset::with_stages("t", vec![StageSpec::Quantize(QuantizeParams::bits(5))]);
+        assert_eq!(Preset::from_json(&p.to_json()).unwrap(), p);
+    }
+
+    #[test]
+    fn errors_name_the_field() {
+        let e = Preset::from_json(r#"{"format":"stairstep-preset","version":1,"stages":[{"kind":"quantize","bits":8},{"kind":"quantize","bits":40}]}"#)
+            .unwrap_err();
+        assert_eq!(e.to_string(), "parameter `stages[1].bits` is 40, allowed: 1..=24");
+        let e = Preset::from_json(r#"{"format":"stairstep-preset","version":9}"#).unwrap_err();
+        assert!(e.to_string().contains("version"), "{e}");
+        let e = Preset::from_json(r#"{"format":"x","version":1}"#).unwrap_err();
+        assert!(e.to_string().contains("format"), "{e}");
+    }
+
+    #[test]
+    fn unknown_fields_and_kinds_are_rejected() {
+        let e = Preset::from_json(r#"{"format":"stairstep-preset","version":1,"stages":[{"kind":"quantize","bitz":8}]}"#);
+        assert!(e.unwrap_err().to_string().contains("bitz"));
+        let e = Preset::from_json(r#"{"format":"stairstep-preset","version":1,"stages":[{"kind":"flanger"}]}"#);
+        assert!(e.unwrap_err().to_string().contains("flanger"));
+    }
+
+    #[test]
+    fn bypass_defaults_to_false() {
+        let p = Preset::from_json(r#"{"format":"stairstep-preset","version":1,"stages":[{"kind":"quantize"},{"kind":"quantize","bypass":true}]}"#).unwrap();
+        assert!(!p.stages[0].bypass);
+        assert!(p.stages[1].bypass);
+    }
+}

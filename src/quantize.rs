@@ -1,0 +1,337 @@
+//! Uniform quantizer: N bits (1 to 24) or any number of levels, with optional dither and noise shaping.
+//!
+//! # Scaling and the +1.0 convention
+//! Samples are floats where full scale is ±1.0. With `L` levels the step is `Δ = 2/L`. For `N` bits (`L = 2^N`) the
+//! mid-tread output is exactly `code · Δ` for the integer codes `−2^(N−1) … 2^(N−1)−1` of N-bit two's-complement PCM,
+//! so an exporter recovers the codes with [`pcm_code`] without any further rounding. The grid is asymmetric like PCM:
+//! −1.0 is a level, +1.0 is not; +1.0 becomes the top code `2^(N−1)−1` (that is `1 − Δ`) and counts as clipped.
+//!
+//! # Grids
+//! - `mid-tread` (default): zero is a level; the PCM grid above. Odd level counts are symmetric,
+//!   codes `−(L−1)/2 … (L−1)/2`.
+//! - `mid-rise`: levels at `(k + ½)·Δ`, symmetric, no zero level (a one-bit mid-rise quantizer is a sign detector).
+//!   Needs an even level count.
+//!
+//! # Rounding
+//! `nearest` rounds half away from zero; `truncate` floors (drops low bits, like discarding the low bits of a
+//! two's-complement word), which biases the error by −Δ/2.
+//!
+//! # Dither and noise shaping
+//! See [`crate::dither`]. Dither is added in LSB units before rounding; the error-feedback loop subtracts filtered past
+//! errors before the dither is added.
+
+use crate::dither::{Dither, DitherKind, NoiseShaper, Shaping};
+use crate::error::{check_range_u, Error, Result};
+use serde::{Deserialize, Serialize};
+
+/// Grid type of a uniform quantizer.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Grid {
+    /// Zero is a level (PCM).
+    #[default]
+    MidTread,
+    /// Zero is a decision threshold.
+    MidRise,
+}
+
+/// Rounding rule.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Rounding {
+    /// To the nearest level (ties away from zero).
+    #[default]
+    Nearest,
+    /// Down to the level below (floor).
+    Truncate,
+}
+
+/// Parameters of the uniform quantizer. Give either `bits` or `levels`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct QuantizeParams {
+    /// Word length in bits, 1 to 24. A good starting point for a lo-fi texture: 8. Ignored when `levels` is set.
+    pub bits: u32,
+    /// Number of levels, 2 to 16,777,216, for grids that are not a power of two (e.g. 12 or 100). `None`: `2^bits`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub levels: Option<u32>,
+    /// Grid type; default mid-tread (PCM).
+    pub grid: Grid,
+    /// Rounding rule; default nearest.
+    pub rounding: Rounding,
+    /// Dither added before rounding; default none. TPDF is the usual choice for clean results.
+    pub dither: DitherKind,
+    /// Dither peak amplitude in LSB, 0 to 16; `None` (default) = the kind's standard (RPDF ±0.5, TPDF ±1).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub dither_peak_lsb: Option<f64>,
+    /// Error-feedback noise shaping; default none.
+    pub shaping: Shaping,
+}
+
+impl Default for QuantizeParams {
+    fn default() -> Self {
+        QuantizeParams {
+            bits: 8,
+            levels: None,
+            grid: Grid::MidTread,
+            rounding: Rounding::Nearest,
+            dither: DitherKind::None,
+            dither_peak_lsb: None,
+            shaping: Shaping::None,
+        }
+    }
+}
+
+impl QuantizeParams {
+    /// `bits`-bit PCM rounding, no dither.
+    pub fn bits(bits: u32) -> Self {
+        QuantizeParams { bits, ..Default::default() }
+    }
+
+    /// The number of levels these parameters describe, after validation.
+    pub fn level_count(&self) -> Result<u32> {
+        match self.levels {
+            Some(l) => {
+                check_range_u("levels", l as u64, 2, 1 << 24)?;
+                Ok(l)
+            }
+            None => {
+                check_range_u("bits", self.bits as u64, 1, 24)?;
+                Ok(1u32 << self.bits)
+            }
+        }
+    }
+
+    /// Whether the output maps onto N-bit PCM codes (power-of-two levels, mid-tread).
+    pub fn pcm_bits(&self) -> Option<u32> {
+        let l = self.level_count().ok()?;
+        (l.is_power_of_two() && self.grid == Grid::MidTread).then(|| l.trailing_zeros())
+    }
+}
+
+/// The uniform quantizer stage for one channel.
+#[derive(Debug, Clone)]
+pub struct Quantizer {
+    params: QuantizeParams,
+    step: f64,
+    inv_step: f64,
+    offset: f64,
+    kmin: f64,
+    kmax: f64,
+    truncate: bool,
+    dither: Dither,
+    shaper: NoiseShaper,
+    clipped: u64,
+}
+
+impl Quantizer {
+    /// Validates `params` and builds the stage. `seed` and `stream` select the dither sequence.
+    pub fn new(params: &QuantizeParams, seed: u64, stream: u64) -> Result<Self> {
+        let levels = params.level_count()?;
+        if params.grid == Grid::MidRise && levels % 2 == 1 {
+            return Err(Error::param("levels", levels, "an even number for the mid-rise grid"));
+        }
+        let l = levels as f64;
+        let step = 2.0 / l;
+        let (kmin, kmax, offset) = match (params.grid, levels % 2) {
+            (Grid::MidTread, 0) => (-l / 2.0, l / 2.0 - 1.0, 0.0),
+            (Grid::MidTread, _) => (-(l - 1.0) / 2.0, (l - 1.0) / 2.0, 0.0),
+            (Grid::MidRise, _) => (-l / 2.0, l / 2.0 - 1.0, 0.5),
+        };
+        let dither = Dither::new(params.dither, params.dither_peak_lsb, seed, stream)?;
+        let shaper = NoiseShaper::new(params.shaping, 1.0 + dither.peak_lsb());
+        Ok(Quantizer {
+            params: params.clone(),
+            step,
+            inv_step: 1.0 / step,
+            offset,
+            kmin,
+            kmax,
+            truncate: params.rounding == Rounding::Truncate,
+            dither,
+            shaper,
+            clipped: 0,
+        })
+    }
+
+    /// Step size Δ in full-scale units.
+    pub fn step(&self) -> f64 {
+        self.step
+    }
+
+    /// The parameters this stage was built from.
+    pub fn params(&self) -> &QuantizeParams {
+        &self.params
+    }
+
+    /// Samples clipped to the top or bottom level since construction or the last [`reset`](Self::reset).
+    pub fn clipped(&self) -> u64 {
+        self.clipped
+    }
+
+    /// Quantizes one sample (NaN is treated as 0).
+    #[inline]
+    pub fn quantize_sample(&mut self, x: f32) -> f32 {
+        let x = if x.is_nan() { 0.0 } else { x as f64 };
+        let v = x * self.inv_step - self.offset - self.shaper.feedback();
+        let t = v + self.dither.next();
+        let mut k = if self.truncate { t.floor() } else { t.round() };
+        if k > self.kmax {
+            k = self.kmax;
+            self.clipped += 1;
+        } else if k < self.kmin {
+            k = self.kmin;
+            self.clipped += 1;
+        }
+        if self.shaper.is_active() {
+            self.shaper.push(k - v);
+        }
+        ((k + self.offset) * self.step) as f32
+    }
+
+    /// Quantizes `buf` in place. Never allocates.
+    pub fn process(&mut self, buf: &mut [f32]) {
+        if !self.shaper.is_active() && self.dither.kind() == DitherKind::None {
+            // Fast path: a pure function of each sample.
+            let (inv, off, step, kmin, kmax) = (self.inv_step, self.offset, self.step, self.kmin, self.kmax);
+            let mut clipped = 0u64;
+            for s in buf.iter_mut() {
+                let x = if s.is_nan() { 0.0 } else { *s as f64 };
+                let t = x * inv - off;
+                let k = if self.truncate { t.floor() } else { t.round() };
+                clipped += (k > kmax || k < kmin) as u64;
+                *s = ((k.clamp(kmin, kmax) + off) * step) as f32;
+            }
+            self.clipped += clipped;
+        } else {
+            for s in buf.iter_mut() {
+                *s = self.quantize_sample(*s);
+            }
+        }
+    }
+
+    /// Clears the error-feedback history, restarts the dither stream and the clip counter.
+    pub fn reset(&mut self) {
+        self.dither.reset();
+        self.shaper.reset();
+        self.clipped = 0;
+    }
+
+    /// Expected total error power (mean square, full-scale units) for a busy, unclipped signal: `Δ²/12` for rounding,
+    /// plus the dither's variance, times the noise-shaping power gain. Truncation adds its bias `(Δ/2)²`.
+    pub fn theory_error_power(&self) -> f64 {
+        let d = self.params.dither;
+        let var_lsb2 = 1.0 / 12.0 + d.variance_lsb2(self.dither.peak_lsb());
+        let bias = if self.truncate && d == DitherKind::None { 0.25 } else { 0.0 };
+        (var_lsb2 * self.params.shaping.power_gain() + bias) * self.step * self.step
+    }
+}
+
+/// Theoretical SQNR in dB of an ideal `bits`-bit rounding quantizer for a full-scale sine: `6.02·N + 1.76`
+/// (exactly `20·log10(2^N) + 10·log10(1.5)`).
+pub fn full_scale_sine_sqnr_db(bits: u32) -> f64 {
+    20.0 * (2f64).powi(bits as i32).log10() + 10.0 * 1.5f64.log10()
+}
+
+/// The N-bit PCM code for a float sample: `round(x · 2^(N−1))`, clamped to `−2^(N−1) … 2^(N−1)−1`, NaN → 0.
+/// For output of an N-bit mid-tread [`Quantizer`] this is exact.
+#[inline]
+pub fn pcm_code(x: f32, bits: u32) -> i32 {
+    let scale = (1u64 << (bits - 1)) as f64;
+    let x = if x.is_nan() { 0.0 } else { x as f64 };
+    (x * scale).round().clamp(-scale, scale - 1.0) as i32
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn q(bits: u32) -> Quantizer {
+        Quantizer::new(&QuantizeParams::bits(bits), 0, 0).unwrap()
+    }
+
+    #[test]
+    fn maps_onto_pcm_codes_at_every_width() {
+        for bits in 1..=24 {
+            let mut qz = q(bits);
+            let scale = (1u64 << (bits - 1)) as f32;
+            for &x in &[-1.0f32, -0.5, -1e-9, 0.0, 0.3, 0.999_999, 1.0] {
+                let y = qz.quantize_sample(x);
+                let code = y * scale;
+                assert_eq!(code, code.round(), "bits {bits} x {x}: {y} is not on the grid");
+                assert!(code >= -scale && code <= scale - 1.0, "bits {bits} x {x} code {code}");
+                assert_eq!(pcm_code(y, bits) as f32, code);
+            }
+        }
+    }
+
+    #[test]
+    fn plus_one_becomes_the_top_code_and_counts_as_clipped() {
+        let mut qz = q(8);
+        let mut b = [1.0f32, -1.0, 0.0];
+        qz.process(&mut b);
+        assert_eq!(b, [127.0 / 128.0, -1.0, 0.0]);
+        assert_eq!(qz.clipped(), 1);
+    }
+
+    #[test]
+    fn one_bit_has_two_levels() {
+        let mut qz = q(1);
+        let mut b = [-0.9f32, -0.2, 0.2, 0.9];
+        qz.process(&mut b);
+        assert_eq!(b, [-1.0, 0.0, 0.0, 0.0]);
+        let mut mr = Quantizer::new(&QuantizeParams { grid: Grid::MidRise, ..QuantizeParams::bits(1) }, 0, 0).unwrap();
+        let mut b = [-0.9f32, -0.2, 0.2, 0.9];
+        mr.process(&mut b);
+        assert_eq!(b, [-0.5, -0.5, 0.5, 0.5]);
+    }
+
+    #[test]
+    fn odd_levels_are_symmetric_and_midrise_rejects_them() {
+        let p = QuantizeParams { levels: Some(3), ..Default::default() };
+        let mut qz = Quantizer::new(&p, 0, 0).unwrap();
+        let mut b = [-1.0f32, -0.2, 0.0, 0.2, 1.0];
+        qz.process(&mut b);
+        let d = 2.0f32 / 3.0;
+        assert_eq!(b, [-d, 0.0, 0.0, 0.0, d]);
+        let e = Quantizer::new(&QuantizeParams { grid: Grid::MidRise, ..p }, 0, 0).unwrap_err();
+        assert!(e.to_string().contains("levels"), "{e}");
+    }
+
+    #[test]
+    fn truncation_floors() {
+        let mut qz = Quantizer::new(&QuantizeParams { rounding: Rounding::Truncate, ..QuantizeParams::bits(3) }, 0, 0)
+            .unwrap();
+        let mut b = [0.24f32, 0.26, -0.01];
+        qz.process(&mut b);
+        assert_eq!(b, [0.0, 0.25, -0.25]);
+    }
+
+    #[test]
+    fn out_of_range_parameters_name_themselves() {
+        for (p, name) in [
+            (QuantizeParams::bits(0), "bits"),
+            (QuantizeParams::bits(25), "bits"),
+            (QuantizeParams { levels: Some(1), ..Default::default() }, "levels"),
+            (QuantizeParams { dither: DitherKind::Tpdf, dither_peak_lsb: Some(99.0), ..Default::default() }, "dither_peak_lsb"),
+        ] {
+            let e = Quantizer::new(&p, 0, 0).unwrap_err();
+            assert!(matches!(&e, Error::Param { name: n, .. } if n == name), "{e}");
+        }
+    }
+
+    #[test]
+    fn nan_becomes_zero() {
+        let mut qz = q(16);
+        let mut b = [f32::NAN];
+        qz.process(&mut b);
+        assert_eq!(b, [0.0]);
+    }
+
+    /// Handbook formula: SQNR of an N-bit quantizer on a full-scale sine is 6.02 N + 1.76 dB.
+    #[test]
+    fn formula_value() {
+        assert!((full_scale_sine_sqnr_db(16) - 98.09).abs() < 0.01);
+        assert!((full_scale_sine_sqnr_db(8) - 49.93).abs() < 0.01);
+    }
+}
