@@ -43,9 +43,7 @@ impl Error {
     /// Prefixes the parameter name with a path, e.g. `bits` becomes `stages[2].bits`.
     pub fn at(self, prefix: &str) -> Self {
         match self {
-            Error::Param { name, value, allowed } => {
-                Error::Param { name: format!("{prefix}.{name}"), value, allowed }
-            }
+            Error::Param { name, value, allowed } => Error::Param { name: format!("{prefix}.{name}"), value, allowed },
             other => other,
         }
     }

@@ -143,7 +143,8 @@ mod tests {
 
     #[test]
     fn unknown_fields_and_kinds_are_rejected() {
-        let e = Preset::from_json(r#"{"format":"stairstep-preset","version":1,"stages":[{"kind":"quantize","bitz":8}]}"#);
+        let e =
+            Preset::from_json(r#"{"format":"stairstep-preset","version":1,"stages":[{"kind":"quantize","bitz":8}]}"#);
         assert!(e.unwrap_err().to_string().contains("bitz"));
         let e = Preset::from_json(r#"{"format":"stairstep-preset","version":1,"stages":[{"kind":"flanger"}]}"#);
         assert!(e.unwrap_err().to_string().contains("flanger"));

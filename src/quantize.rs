@@ -300,8 +300,8 @@ mod tests {
 
     #[test]
     fn truncation_floors() {
-        let mut qz = Quantizer::new(&QuantizeParams { rounding: Rounding::Truncate, ..QuantizeParams::bits(3) }, 0, 0)
-            .unwrap();
+        let mut qz =
+            Quantizer::new(&QuantizeParams { rounding: Rounding::Truncate, ..QuantizeParams::bits(3) }, 0, 0).unwrap();
         let mut b = [0.24f32, 0.26, -0.01];
         qz.process(&mut b);
         assert_eq!(b, [0.0, 0.25, -0.25]);
@@ -313,7 +313,10 @@ mod tests {
             (QuantizeParams::bits(0), "bits"),
             (QuantizeParams::bits(25), "bits"),
             (QuantizeParams { levels: Some(1), ..Default::default() }, "levels"),
-            (QuantizeParams { dither: DitherKind::Tpdf, dither_peak_lsb: Some(99.0), ..Default::default() }, "dither_peak_lsb"),
+            (
+                QuantizeParams { dither: DitherKind::Tpdf, dither_peak_lsb: Some(99.0), ..Default::default() },
+                "dither_peak_lsb",
+            ),
         ] {
             let e = Quantizer::new(&p, 0, 0).unwrap_err();
             assert!(matches!(&e, Error::Param { name: n, .. } if n == name), "{e}");

@@ -124,9 +124,7 @@ pub fn read(bytes: &[u8]) -> Result<Clip> {
         (WAVE_FORMAT_PCM, 24) => |b| (i32::from_le_bytes([0, b[0], b[1], b[2]]) >> 8) as f32 / 8_388_608.0,
         (WAVE_FORMAT_PCM, 32) => |b| (i32::from_le_bytes([b[0], b[1], b[2], b[3]]) as f64 / 2_147_483_648.0) as f32,
         (WAVE_FORMAT_IEEE_FLOAT, 32) => |b| f32::from_le_bytes([b[0], b[1], b[2], b[3]]),
-        (WAVE_FORMAT_IEEE_FLOAT, 64) => {
-            |b| f64::from_le_bytes([b[0], b[1], b[2], b[3], b[4], b[5], b[6], b[7]]) as f32
-        }
+        (WAVE_FORMAT_IEEE_FLOAT, 64) => |b| f64::from_le_bytes([b[0], b[1], b[2], b[3], b[4], b[5], b[6], b[7]]) as f32,
         _ => return Err(Error::format(format!("unsupported format tag {tag:#06x} with {bits} bits per sample"))),
     };
     let frame_bytes = channels * bits / 8;

@@ -1,0 +1,146 @@
+//! The JavaScript boundary (compiled only for wasm32). Nothing else in the crate knows about JS.
+//!
+//! One opaque handle, [`Session`], owns the loaded sound, the preset and the latest render; JS receives typed arrays
+//! and small JSON strings. Errors become JS exceptions carrying the crate's error message.
+
+use crate::analysis::{envelope, sqnr_db, SpectrumAnalyzer, Window};
+use crate::chain::{self, Render};
+use crate::{demo, io, Clip, Error, Preset};
+use wasm_bindgen::prelude::*;
+
+fn js_err(e: Error) -> JsError {
+    JsError::new(&e.to_string())
+}
+
+/// A loaded sound, its chain and its latest render.
+#[wasm_bindgen]
+pub struct Session {
+    source: Clip,
+    preset: Preset,
+    render: Option<Render>,
+    analyzer: Option<SpectrumAnalyzer>,
+}
+
+impl Default for Session {
+    fn default() -> Self {
+        Self::new()
+    }
+}
+
+#[wasm_bindgen]
+impl Session {
+    /// A session holding the default demo and an empty chain.
+    #[wasm_bindgen(constructor)]
+    pub fn new() -> Session {
+        let source = demo::demo(demo::DEMOS[0]).expect("built-in demo");
+        Session { source, preset: Preset::default(), render: None, analyzer: None }
+    }
+
+    /// Names of the built-in demos, as a JSON array.
+    #[wasm_bindgen(js_name = demoNames)]
+    pub fn demo_names() -> String {
+        serde_json::to_string(&demo::DEMOS).unwrap_or_default()
+    }
+
+    /// Loads a built-in demo; returns its description as JSON.
+    #[wasm_bindgen(js_name = loadDemo)]
+    pub fn load_demo(&mut self, name: &str) -> Result<String, JsError> {
+        self.set_source(demo::demo(name).map_err(js_err)?)
+    }
+
+    /// Loads a WAV file from its bytes; returns its description as JSON. On error the current sound stays.
+    #[wasm_bindgen(js_name = loadWav)]
+    pub fn load_wav(&mut self, bytes: &[u8]) -> Result<String, JsError> {
+        self.set_source(io::wav::read(bytes).map_err(js_err)?)
+    }
+
+    /// Loads interleaved samples decoded by the browser.
+    #[wasm_bindgen(js_name = loadSamples)]
+    pub fn load_samples(&mut self, sample_rate: u32, channels: usize, interleaved: &[f32]) -> Result<String, JsError> {
+        self.set_source(Clip::from_interleaved(sample_rate, channels, interleaved).map_err(js_err)?)
+    }
+
+    fn set_source(&mut self, clip: Clip) -> Result<String, JsError> {
+        self.source = clip;
+        self.render = None;
+        Ok(self.describe())
+    }
+
+    /// Description of the loaded sound as JSON: `{ sampleRate, channels, frames }`.
+    pub fn describe(&self) -> String {
+        format!(
+            r#"{{"sampleRate":{},"channels":{},"frames":{}}}"#,
+            self.source.sample_rate,
+            self.source.channel_count(),
+            self.source.frames()
+        )
+    }
+
+    /// Sets the preset from JSON (validated; on error the previous preset stays).
+    #[wasm_bindgen(js_name = setPreset)]
+    pub fn set_preset(&mut self, json: &str) -> Result<(), JsError> {
+        self.preset = Preset::from_json(json).map_err(js_err)?;
+        Ok(())
+    }
+
+    /// Renders the loaded sound through the preset; returns the report as JSON, with `sqnrDb` added.
+    pub fn render(&mut self) -> Result<String, JsError> {
+        let r = chain::render(&self.preset, &self.source).map_err(js_err)?;
+        let sqnr = sqnr_db(&self.source.channels, &r.audition.channels);
+        let mut v = serde_json::to_value(&r.report).map_err(|e| JsError::new(&e.to_string()))?;
+        v["sqnr_db"] = sqnr.into();
+        self.render = Some(r);
+        Ok(v.to_string())
+    }
+
+    fn signal(&self, which: &str, ch: usize) -> Result<Vec<f32>, JsError> {
+        let ch = ch.min(self.source.channel_count() - 1);
+        match (which, &self.render) {
+            ("input", _) => Ok(self.source.channels[ch].clone()),
+            ("output", Some(r)) => Ok(r.audition.channels[ch].clone()),
+            ("error", Some(r)) => Ok(r.error(&self.source, ch)),
+            ("output" | "error", None) => Err(JsError::new("nothing rendered yet")),
+            _ => Err(JsError::new(&format!("unknown signal {which:?}: input, output or error"))),
+        }
+    }
+
+    /// Samples of one channel of `input`, `output` (at the source rate) or `error`.
+    pub fn samples(&self, which: &str, channel: usize) -> Result<Vec<f32>, JsError> {
+        self.signal(which, channel)
+    }
+
+    /// Welch spectrum in dBFS of all channels of `which`; `fft_size/2 + 1` bins, bin k at k·rate/fft_size Hz.
+    pub fn spectrum(&mut self, which: &str, fft_size: usize, window: &str) -> Result<Vec<f32>, JsError> {
+        let window: Window =
+            serde_json::from_value(window.into()).map_err(|_| JsError::new(&format!("unknown window {window:?}")))?;
+        let a = match self.analyzer.take() {
+            Some(a) if a.size() == fft_size && format!("{a:?}").contains(&format!("{window:?}")) => a,
+            _ => SpectrumAnalyzer::new(fft_size, window).map_err(js_err)?,
+        };
+        let mut a = a;
+        let chans: Vec<Vec<f32>> =
+            (0..self.source.channel_count()).map(|c| self.signal(which, c)).collect::<Result<_, _>>()?;
+        let out = a.analyze(&chans);
+        self.analyzer = Some(a);
+        Ok(out)
+    }
+
+    /// Min/max pairs of one channel of `which` over frames `start..end` in `columns` columns.
+    pub fn envelope(
+        &self,
+        which: &str,
+        channel: usize,
+        start: usize,
+        end: usize,
+        columns: usize,
+    ) -> Result<Vec<f32>, JsError> {
+        Ok(envelope(&self.signal(which, channel)?, start, end, columns))
+    }
+
+    /// The current render encoded in the preset's export format.
+    #[wasm_bindgen(js_name = exportFile)]
+    pub fn export_file(&self) -> Result<Vec<u8>, JsError> {
+        let r = self.render.as_ref().ok_or_else(|| JsError::new("nothing rendered yet"))?;
+        self.preset.export.encode(&r.export).map_err(js_err)
+    }
+}
