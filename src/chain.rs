@@ -3,7 +3,7 @@
 //! A chain is built from a [`Preset`]: construction validates every stage (errors name `stages[i].param`) and
 //! allocates everything; rendering then only runs `process` on fixed-size blocks.
 
-use crate::analysis::Levels;
+use crate::analysis::{sqnr_db, Levels};
 use crate::audio::Clip;
 use crate::error::{Error, Result};
 use crate::preset::{Preset, StageSpec};
@@ -23,6 +23,10 @@ pub trait Stage: Send {
     fn clipped(&self) -> u64 {
         0
     }
+    /// Expected mean-square error this stage adds for a busy, unclipped signal, where a simple formula exists.
+    fn theory_error_power(&self) -> Option<f64> {
+        None
+    }
 }
 
 impl Stage for Quantizer {
@@ -34,6 +38,9 @@ impl Stage for Quantizer {
     }
     fn clipped(&self) -> u64 {
         Quantizer::clipped(self)
+    }
+    fn theory_error_power(&self) -> Option<f64> {
+        Some(Quantizer::theory_error_power(self))
     }
 }
 
@@ -58,6 +65,10 @@ pub struct RenderReport {
     pub export_rate: u32,
     /// Frames of the source.
     pub frames: usize,
+    /// Frames of the export (at `export_rate`).
+    pub export_frames: usize,
+    /// Number of channels.
+    pub channels: usize,
     /// NaN and ±Inf input samples (replaced by 0 and ±1.0 before the first stage; they never reach an export).
     pub non_finite_inputs: u64,
     /// Clipped samples per stage (all channels), in chain order; bypassed stages read 0.
@@ -68,6 +79,14 @@ pub struct RenderReport {
     pub input: Levels,
     /// Levels of the output.
     pub output: Levels,
+    /// Measured SQNR in dB: input power over the power of (output − input), all channels.
+    pub sqnr_db: f64,
+    /// The SQNR theory predicts for this input, where a simple formula applies: the chain's only active stage is a
+    /// uniform quantizer, and nothing clipped. Input power over the quantizer's expected error power (Δ²/12 plus
+    /// dither, times the noise-shaping gain).
+    pub theory_sqnr_db: Option<f64>,
+    /// Why there is no theory figure, when there is none.
+    pub theory_note: Option<String>,
 }
 
 /// The result of rendering a clip through a chain.
@@ -163,17 +182,43 @@ impl Chain {
             .collect();
         let audition = Clip { sample_rate: self.source_rate, channels: out_channels };
         let export = Clip { sample_rate: self.export_rate, channels: audition.channels.clone() };
+        let input_levels = Levels::measure(&input.channels);
+        let (theory_sqnr_db, theory_note) = self.theory(&input_levels, clipped_per_stage.iter().sum());
         let report = RenderReport {
             source_rate: self.source_rate,
             export_rate: self.export_rate,
             frames: input.frames(),
+            export_frames: export.frames(),
+            channels: input.channel_count(),
+            sqnr_db: sqnr_db(&input.channels, &audition.channels),
+            theory_sqnr_db,
+            theory_note,
             non_finite_inputs: non_finite,
             clipped: clipped_per_stage.iter().sum(),
             clipped_per_stage,
-            input: Levels::measure(&input.channels),
+            input: input_levels,
             output: Levels::measure(&audition.channels),
         };
         Ok(Render { export, audition, report })
+    }
+
+    fn theory(&self, input: &Levels, clipped: u64) -> (Option<f64>, Option<String>) {
+        let Some(lane) = self.lanes.first() else { return (None, Some("no channels".into())) };
+        let active: Vec<&dyn Stage> = lane.iter().flatten().map(|s| s.as_ref()).collect();
+        let note = |s: &str| (None, Some(s.to_string()));
+        match active.as_slice() {
+            [] => note("no active stage: the output equals the input"),
+            [only] => match only.theory_error_power() {
+                None => note("no simple formula for this stage: measured only"),
+                Some(_) if clipped > 0 => note("the quantizer clipped: the formula assumes no overload"),
+                Some(p) => {
+                    // Mean square of the input, from its sine-referenced RMS (rms_dbfs is 10·log10(2·ms)).
+                    let ms = 10f64.powf(input.rms_dbfs / 10.0) / 2.0;
+                    (Some(crate::analysis::power_db(ms / p)), None)
+                }
+            },
+            _ => note("several active stages: no simple formula, measured only"),
+        }
     }
 }
 

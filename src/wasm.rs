@@ -3,7 +3,7 @@
 //! One opaque handle, [`Session`], owns the loaded sound, the preset and the latest render; JS receives typed arrays
 //! and small JSON strings. Errors become JS exceptions carrying the crate's error message.
 
-use crate::analysis::{envelope, sqnr_db, SpectrumAnalyzer, Window};
+use crate::analysis::{envelope, SpectrumAnalyzer, Window};
 use crate::chain::{self, Render};
 use crate::{demo, io, Clip, Error, Preset};
 use wasm_bindgen::prelude::*;
@@ -83,14 +83,12 @@ impl Session {
         Ok(())
     }
 
-    /// Renders the loaded sound through the preset; returns the report as JSON, with `sqnrDb` added.
+    /// Renders the loaded sound through the preset; returns the [`crate::chain::RenderReport`] as JSON.
     pub fn render(&mut self) -> Result<String, JsError> {
         let r = chain::render(&self.preset, &self.source).map_err(js_err)?;
-        let sqnr = sqnr_db(&self.source.channels, &r.audition.channels);
-        let mut v = serde_json::to_value(&r.report).map_err(|e| JsError::new(&e.to_string()))?;
-        v["sqnr_db"] = sqnr.into();
+        let json = serde_json::to_string(&r.report).map_err(|e| JsError::new(&e.to_string()))?;
         self.render = Some(r);
-        Ok(v.to_string())
+        Ok(json)
     }
 
     fn signal(&self, which: &str, ch: usize) -> Result<Vec<f32>, JsError> {
@@ -113,11 +111,10 @@ impl Session {
     pub fn spectrum(&mut self, which: &str, fft_size: usize, window: &str) -> Result<Vec<f32>, JsError> {
         let window: Window =
             serde_json::from_value(window.into()).map_err(|_| JsError::new(&format!("unknown window {window:?}")))?;
-        let a = match self.analyzer.take() {
-            Some(a) if a.size() == fft_size && format!("{a:?}").contains(&format!("{window:?}")) => a,
+        let mut a = match self.analyzer.take() {
+            Some(a) if a.size() == fft_size && a.window() == window => a,
             _ => SpectrumAnalyzer::new(fft_size, window).map_err(js_err)?,
         };
-        let mut a = a;
         let chans: Vec<Vec<f32>> =
             (0..self.source.channel_count()).map(|c| self.signal(which, c)).collect::<Result<_, _>>()?;
         let out = a.analyze(&chans);

@@ -88,6 +88,11 @@ impl SpectrumAnalyzer {
         self.size
     }
 
+    /// Window.
+    pub fn window(&self) -> Window {
+        self.window
+    }
+
     /// Number of output bins, `size/2 + 1`.
     pub fn bins(&self) -> usize {
         self.size / 2 + 1

@@ -1,0 +1,701 @@
+// Stairstep page: user interface, drawing and audition. All DSP runs in the worker (the Rust core compiled to wasm).
+// Sections: stage schema · state · worker · chain editor · export panel · views · audition · start-up.
+
+'use strict';
+
+// ---------------------------------------------------------------------------------------------------------------------
+// Stage schema: what the chain editor shows for each stage kind. Ranges mirror the core's validation; the core has the
+// last word (its error messages name the field and range).
+// ---------------------------------------------------------------------------------------------------------------------
+const E = (options) => ({ type: 'enum', options });
+const STAGES = {
+  quantize: {
+    label: 'Uniform quantizer',
+    fields: [
+      { key: 'bits', label: 'Bits', type: 'int', min: 1, max: 24, unit: 'bit', def: 8 },
+      { key: 'grid', label: 'Grid', ...E(['mid-tread', 'mid-rise']), def: 'mid-tread' },
+      { key: 'rounding', label: 'Rounding', ...E(['nearest', 'truncate']), def: 'nearest' },
+      { key: 'dither', label: 'Dither', ...E(['none', 'rpdf', 'tpdf', 'highpass-tpdf']), def: 'none' },
+      { key: 'dither_peak_lsb', label: 'Dither peak', type: 'float', min: 0, max: 16, step: 0.05, unit: 'LSB',
+        def: null, placeholder: 'standard' },
+      { key: 'shaping', label: 'Noise shaping', ...E(['none', 'first-order', 'second-order', 'ewt5', 'ewt9']),
+        def: 'none' },
+    ],
+  },
+};
+
+const EXPORTS = {
+  'wav:pcm-u8': { label: 'WAV, 8-bit unsigned PCM', spec: { type: 'wav', encoding: 'pcm-u8' } },
+  'wav:pcm-s16': { label: 'WAV, 16-bit PCM', spec: { type: 'wav', encoding: 'pcm-s16' } },
+  'wav:pcm-s24': { label: 'WAV, 24-bit PCM', spec: { type: 'wav', encoding: 'pcm-s24' } },
+  'wav:pcm-s32': { label: 'WAV, 32-bit PCM', spec: { type: 'wav', encoding: 'pcm-s32' } },
+  'wav:float32': { label: 'WAV, 32-bit float', spec: { type: 'wav', encoding: 'float32' } },
+};
+
+const BUILTIN_PRESETS = [
+  { name: '8-bit, plain rounding', seed: 1, stages: [{ kind: 'quantize', bits: 8 }], export: EXPORTS['wav:pcm-u8'].spec },
+  { name: '8-bit, TPDF dither', seed: 1, stages: [{ kind: 'quantize', bits: 8, dither: 'tpdf' }],
+    export: EXPORTS['wav:pcm-u8'].spec },
+  { name: '4-bit grit', seed: 1, stages: [{ kind: 'quantize', bits: 4 }], export: EXPORTS['wav:pcm-s16'].spec },
+];
+
+// ---------------------------------------------------------------------------------------------------------------------
+// State
+// ---------------------------------------------------------------------------------------------------------------------
+const $ = (id) => document.getElementById(id);
+const state = {
+  sourceName: 'chime-loop',
+  info: null, // { sampleRate, channels, frames }
+  input: null, // Float32Array per channel
+  output: null,
+  report: null,
+  spectra: null,
+  env: null,
+  preset: { format: 'stairstep-preset', version: 1, name: 'Untitled', seed: 1,
+            stages: [{ kind: 'quantize', bits: 8 }], export: { type: 'wav', encoding: 'pcm-s16' } },
+  view: { start: 0, end: 0 },
+  loop: null, // { start, end } in frames, or null for the whole sound
+  fftSize: 4096,
+  window: 'hann',
+};
+window.stairstep = state; // for tests and the curious
+
+function setStatus(text, kind = 'info') {
+  const s = $('status');
+  s.textContent = text;
+  s.dataset.kind = kind;
+}
+
+// ---------------------------------------------------------------------------------------------------------------------
+// Worker
+// ---------------------------------------------------------------------------------------------------------------------
+function decodeBase64(b64) {
+  const bin = atob(b64.trim());
+  const out = new Uint8Array(bin.length);
+  for (let i = 0; i < bin.length; i++) out[i] = bin.charCodeAt(i);
+  return out;
+}
+
+const wasmBytes = decodeBase64($('wasm-b64').textContent);
+const workerUrl = URL.createObjectURL(new Blob([$('worker-src').textContent], { type: 'text/javascript' }));
+const worker = new Worker(workerUrl); // classic: module workers from blob: URLs fail on file:// pages
+const waiting = new Map();
+let nextId = 1;
+
+worker.onmessage = (e) => {
+  const msg = e.data;
+  const w = waiting.get(msg.id);
+  if (!w) { if (msg.type === 'error') setStatus(msg.message, 'error'); return; }
+  waiting.delete(msg.id);
+  if (msg.type === 'error') w.reject(new Error(msg.message)); else w.resolve(msg);
+};
+worker.onerror = (e) => setStatus(`Processing worker failed: ${e.message}`, 'error');
+
+// Sends a request to the worker; resolves with its reply (every reply carries the request's id).
+function call(type, payload = {}, transfer = []) {
+  const id = nextId++;
+  return new Promise((resolve, reject) => {
+    waiting.set(id, { resolve, reject });
+    worker.postMessage({ type, id, ...payload }, transfer);
+  });
+}
+
+// Renders are coalesced: while one runs, only the newest request waits.
+let rendering = false;
+let pendingRender = false;
+function requestRender() {
+  if (rendering) { pendingRender = true; return; }
+  rendering = true;
+  pendingRender = false;
+  const view = { ...viewRange(), columns: waveColumns(), fftSize: state.fftSize, window: state.window };
+  call('render', { preset: JSON.stringify(state.preset), view })
+    .then((msg) => {
+      state.report = msg.report;
+      state.spectra = msg.spectra;
+      state.env = msg.env;
+      state.output = msg.output;
+      state.errorSignal = null;
+      state.renderMs = msg.ms;
+      markStageErrors(null);
+      drawAll();
+      audio.refresh();
+      setStatus(`Rendered in ${msg.ms.toFixed(0)} ms`);
+      document.body.dataset.rendered = String((+document.body.dataset.rendered || 0) + 1);
+    })
+    .catch((err) => { markStageErrors(err.message); setStatus(err.message, 'error'); })
+    .finally(() => { rendering = false; if (pendingRender) requestRender(); });
+}
+
+async function loadSource(payload, name, transfer = []) {
+  try {
+    const msg = await call('load', { ...payload, name }, transfer);
+    state.info = msg.info;
+    state.input = msg.input;
+    state.sourceName = name;
+    state.view = { start: 0, end: msg.info.frames };
+    state.loop = null;
+    audio.newSource();
+    $('source-info').textContent =
+      `${msg.info.channels === 1 ? 'mono' : msg.info.channels === 2 ? 'stereo' : msg.info.channels + ' ch'}, ` +
+      `${msg.info.sampleRate.toLocaleString('en')} Hz, ${(msg.info.frames / msg.info.sampleRate).toFixed(2)} s`;
+    requestRender();
+  } catch (err) {
+    setStatus(`Could not load ${name}: ${err.message}. The current sound is unchanged.`, 'error');
+  }
+}
+
+// ---------------------------------------------------------------------------------------------------------------------
+// Chain editor
+// ---------------------------------------------------------------------------------------------------------------------
+function el(tag, attrs = {}, ...children) {
+  const e = document.createElement(tag);
+  for (const [k, v] of Object.entries(attrs)) {
+    if (k === 'class') e.className = v;
+    else if (k.startsWith('on')) e.addEventListener(k.slice(2), v);
+    else if (v !== null && v !== undefined && v !== false) e.setAttribute(k, v === true ? '' : v);
+  }
+  for (const c of children) e.append(c);
+  return e;
+}
+
+function fieldControl(stage, f, onChange) {
+  const value = stage[f.key] ?? f.def;
+  const id = `f-${Math.random().toString(36).slice(2)}`;
+  if (f.type === 'enum') {
+    const sel = el('select', { id, onchange: () => { stage[f.key] = sel.value; onChange(); } },
+      ...f.options.map((o) => el('option', { value: o, selected: o === value }, o)));
+    return el('label', { class: 'field', for: id }, el('span', {}, f.label), sel);
+  }
+  if (f.type === 'bool') {
+    const box = el('input', { id, type: 'checkbox', checked: !!value,
+      onchange: () => { stage[f.key] = box.checked; onChange(); } });
+    return el('label', { class: 'field check', for: id }, box, el('span', {}, f.label));
+  }
+  const step = f.step ?? (f.type === 'int' ? 1 : 0.1);
+  const num = el('input', { id, type: 'number', min: f.min, max: f.max, step, value: value ?? '',
+    placeholder: f.placeholder ?? '', 'aria-label': `${f.label} in ${f.unit}` });
+  const range = el('input', { type: 'range', min: f.min, max: f.max, step, value: value ?? f.min, tabindex: -1,
+    'aria-hidden': 'true' });
+  const commit = (text) => {
+    if (text === '' && f.def === null) { delete stage[f.key]; onChange(); return; }
+    const v = f.type === 'int' ? parseInt(text, 10) : parseFloat(text);
+    if (Number.isFinite(v)) { stage[f.key] = v; range.value = v; onChange(); }
+  };
+  num.addEventListener('change', () => commit(num.value));
+  range.addEventListener('input', () => { num.value = range.value; commit(range.value); });
+  return el('label', { class: 'field', for: id }, el('span', {}, f.label),
+    el('span', { class: 'numeric' }, range, num, el('span', { class: 'unit' }, f.unit)));
+}
+
+function renderChain() {
+  const box = $('chain');
+  box.replaceChildren();
+  state.preset.stages.forEach((stage, i) => {
+    const schema = STAGES[stage.kind];
+    const changed = () => requestRender();
+    const head = el('div', { class: 'stage-head' },
+      el('span', { class: 'stage-index' }, String(i + 1)),
+      el('strong', {}, schema ? schema.label : stage.kind),
+      el('label', { class: 'check' }, el('input', { type: 'checkbox', checked: !!stage.bypass,
+        onchange: (e) => { stage.bypass = e.target.checked; if (!stage.bypass) delete stage.bypass; renderChain(); requestRender(); } }),
+        'Bypass'),
+      el('button', { type: 'button', title: 'Move up', 'aria-label': `Move stage ${i + 1} up`, disabled: i === 0,
+        onclick: () => moveStage(i, -1) }, '↑'),
+      el('button', { type: 'button', title: 'Move down', 'aria-label': `Move stage ${i + 1} down`,
+        disabled: i === state.preset.stages.length - 1, onclick: () => moveStage(i, 1) }, '↓'),
+      el('button', { type: 'button', title: 'Remove', 'aria-label': `Remove stage ${i + 1}`,
+        onclick: () => { state.preset.stages.splice(i, 1); renderChain(); requestRender(); } }, '✕'));
+    const body = el('div', { class: 'stage-body' },
+      ...(schema ? schema.fields.map((f) => fieldControl(stage, f, changed)) : []));
+    box.append(el('div', { class: `stage${stage.bypass ? ' bypassed' : ''}`, 'data-kind': stage.kind }, head, body,
+      el('div', { class: 'stage-error', role: 'alert' })));
+  });
+}
+
+function moveStage(i, d) {
+  const s = state.preset.stages;
+  [s[i], s[i + d]] = [s[i + d], s[i]];
+  renderChain();
+  requestRender();
+}
+
+function markStageErrors(message) {
+  document.querySelectorAll('.stage-error').forEach((e) => { e.textContent = ''; });
+  if (!message) return;
+  const m = /stages\[(\d+)\]/.exec(message);
+  const cards = document.querySelectorAll('.stage');
+  if (m && cards[+m[1]]) cards[+m[1]].querySelector('.stage-error').textContent = message;
+}
+
+function setupChainTools() {
+  const add = $('add-kind');
+  for (const [k, s] of Object.entries(STAGES)) add.append(el('option', { value: k }, s.label));
+  $('add-stage').onclick = () => {
+    const kind = add.value;
+    const stage = { kind };
+    for (const f of STAGES[kind].fields) if (f.def !== null && f.def !== undefined) stage[f.key] = f.def;
+    state.preset.stages.push(stage);
+    renderChain();
+    requestRender();
+  };
+  const sel = $('preset-builtin');
+  BUILTIN_PRESETS.forEach((p, i) => sel.append(el('option', { value: String(i) }, p.name)));
+  sel.onchange = () => {
+    if (sel.value === '') return;
+    applyPreset({ format: 'stairstep-preset', version: 1, ...structuredClone(BUILTIN_PRESETS[+sel.value]) });
+    sel.value = '';
+  };
+  $('preset-save').onclick = () => {
+    const text = JSON.stringify(state.preset, null, 2) + '\n';
+    download(new Blob([text], { type: 'application/json' }), `${slug(state.preset.name || 'preset')}.json`);
+  };
+  $('preset-file').onchange = async (e) => {
+    const f = e.target.files[0];
+    e.target.value = '';
+    if (!f) return;
+    try {
+      const p = JSON.parse(await f.text());
+      if (p.format !== 'stairstep-preset') throw new Error('not a Stairstep preset (format field)');
+      applyPreset(p);
+      setStatus(`Loaded preset ${f.name}`);
+    } catch (err) {
+      setStatus(`Could not load preset ${f.name}: ${err.message}`, 'error');
+    }
+  };
+}
+
+function applyPreset(p) {
+  state.preset = p;
+  renderChain();
+  renderExport();
+  requestRender();
+}
+
+// ---------------------------------------------------------------------------------------------------------------------
+// Export panel
+// ---------------------------------------------------------------------------------------------------------------------
+function exportKey(spec) {
+  return Object.keys(EXPORTS).find((k) => JSON.stringify(EXPORTS[k].spec) === JSON.stringify(spec)) ?? 'wav:pcm-s16';
+}
+
+function renderExport() {
+  const box = $('export');
+  const sel = el('select', { id: 'export-format', 'aria-label': 'Export format',
+    onchange: () => { state.preset.export = structuredClone(EXPORTS[sel.value].spec); drawBudget(); } },
+  ...Object.entries(EXPORTS).map(([k, v]) => el('option', { value: k, selected: k === exportKey(state.preset.export) }, v.label)));
+  box.replaceChildren(el('label', { class: 'field' }, el('span', {}, 'Format'), sel));
+  drawBudget();
+}
+
+function drawBudget() {
+  const r = state.report;
+  if (!r) { $('budget').textContent = ''; return; }
+  const bytesPerSample = { 'pcm-u8': 1, 'pcm-s16': 2, 'pcm-s24': 3, 'pcm-s32': 4, float32: 4 }[state.preset.export.encoding];
+  const bps = r.export_rate * r.channels * bytesPerSample;
+  const size = 44 + r.export_frames * r.channels * bytesPerSample;
+  $('budget').textContent = `${fmtBytes(bps)}/s · ${fmtBytes(size)} (${size.toLocaleString('en')} bytes)` +
+    ` · SQNR ${fmtDb(r.sqnr_db)}`;
+}
+
+function fmtBytes(n) {
+  if (n < 1024) return `${n} B`;
+  if (n < 1024 * 1024) return `${(n / 1024).toFixed(1)} KiB`;
+  return `${(n / 1024 / 1024).toFixed(2)} MiB`;
+}
+function fmtDb(v) { return v >= 239 ? '∞ dB' : `${v.toFixed(1)} dB`; }
+function slug(s) { return s.toLowerCase().replace(/[^a-z0-9]+/g, '-').replace(/^-|-$/g, '') || 'untitled'; }
+
+function download(blob, name) {
+  const a = el('a', { href: URL.createObjectURL(blob), download: name });
+  document.body.append(a);
+  a.click();
+  a.remove();
+  setTimeout(() => URL.revokeObjectURL(a.href), 10_000);
+}
+
+async function doExport() {
+  try {
+    const msg = await call('export', { preset: JSON.stringify(state.preset) });
+    const ext = state.preset.export.type === 'wav' ? 'wav' : 'bin';
+    download(new Blob([msg.file], { type: 'application/octet-stream' }),
+      `${slug(state.sourceName)}--${slug(state.preset.name || 'custom')}.${ext}`);
+    setStatus(`Exported ${msg.file.length.toLocaleString('en')} bytes`);
+  } catch (err) {
+    setStatus(`Export failed: ${err.message}`, 'error');
+  }
+}
+
+// ---------------------------------------------------------------------------------------------------------------------
+// Views
+// ---------------------------------------------------------------------------------------------------------------------
+function css(name) { return getComputedStyle(document.body).getPropertyValue(name).trim(); }
+
+function fitCanvas(c) {
+  const r = c.getBoundingClientRect();
+  const dpr = window.devicePixelRatio || 1;
+  const w = Math.max(100, Math.round(r.width * dpr));
+  const h = Math.max(60, Math.round(r.height * dpr));
+  if (c.width !== w || c.height !== h) { c.width = w; c.height = h; }
+  return { w, h, dpr };
+}
+
+function waveColumns() { return Math.max(100, Math.round($('wave').getBoundingClientRect().width)); }
+function viewRange() { return { start: state.view.start, end: state.view.end || (state.info ? state.info.frames : 0) }; }
+
+function drawWave() {
+  const c = $('wave');
+  const { w, h } = fitCanvas(c);
+  const g = c.getContext('2d');
+  g.fillStyle = css('--plot-bg');
+  g.fillRect(0, 0, w, h);
+  if (!state.env) return;
+  const { start, end } = viewRange();
+  if (state.loop) {
+    const x0 = ((state.loop.start - start) / (end - start)) * w;
+    const x1 = ((state.loop.end - start) / (end - start)) * w;
+    g.fillStyle = css('--loop');
+    g.fillRect(x0, 0, x1 - x0, h);
+  }
+  g.strokeStyle = css('--grid');
+  g.beginPath(); g.moveTo(0, h / 2); g.lineTo(w, h / 2); g.stroke();
+  const drawEnv = (env, color) => {
+    const n = env.length / 2;
+    g.fillStyle = color;
+    for (let i = 0; i < n; i++) {
+      const x = (i / n) * w;
+      const y0 = h / 2 - env[2 * i + 1] * (h / 2 - 2);
+      const y1 = h / 2 - env[2 * i] * (h / 2 - 2);
+      g.fillRect(x, y0, Math.max(1, w / n), Math.max(1, y1 - y0));
+    }
+  };
+  drawEnv(state.env.input, css('--original'));
+  g.globalAlpha = 0.85;
+  drawEnv(state.env.output, css('--processed'));
+  g.globalAlpha = 1;
+  if (audio.playing) {
+    const pos = audio.position();
+    const x = ((pos - start) / (end - start)) * w;
+    g.fillStyle = css('--fg');
+    g.fillRect(x, 0, 2, h);
+  }
+}
+
+const SPEC = { top: 6, bottom: -168, fmin: 20 };
+function specX(f, w, nyq) { return (Math.log(f / SPEC.fmin) / Math.log(nyq / SPEC.fmin)) * w; }
+function specY(db, h) { return ((SPEC.top - db) / (SPEC.top - SPEC.bottom)) * h; }
+
+function drawSpectrum() {
+  const c = $('spectrum');
+  const { w, h, dpr } = fitCanvas(c);
+  const g = c.getContext('2d');
+  g.fillStyle = css('--plot-bg');
+  g.fillRect(0, 0, w, h);
+  if (!state.spectra || !state.info) return;
+  const nyq = state.info.sampleRate / 2;
+  g.font = `${11 * dpr}px system-ui, sans-serif`;
+  g.fillStyle = css('--dim');
+  g.strokeStyle = css('--grid');
+  for (let db = 0; db >= SPEC.bottom; db -= 24) {
+    const y = specY(db, h);
+    g.beginPath(); g.moveTo(0, y); g.lineTo(w, y); g.stroke();
+    g.fillText(`${db}`, 4, y - 2);
+  }
+  for (const f of [50, 100, 200, 500, 1000, 2000, 5000, 10000, 20000]) {
+    if (f >= nyq) continue;
+    const x = specX(f, w, nyq);
+    g.beginPath(); g.moveTo(x, 0); g.lineTo(x, h); g.stroke();
+    g.fillText(f >= 1000 ? `${f / 1000}k` : `${f}`, x + 2, h - 4);
+  }
+  const curve = (s, color) => {
+    const binHz = state.info.sampleRate / state.fftSize;
+    g.strokeStyle = color;
+    g.lineWidth = dpr;
+    g.beginPath();
+    // One point per pixel column: the strongest bin that falls in it.
+    let col = -1, best = -Infinity, started = false;
+    for (let k = 1; k < s.length; k++) {
+      const x = Math.floor(specX(k * binHz, w, nyq));
+      if (x !== col) {
+        if (col >= 0) { const y = specY(best, h); if (started) g.lineTo(col, y); else { g.moveTo(col, y); started = true; } }
+        col = x; best = -Infinity;
+      }
+      best = Math.max(best, s[k]);
+    }
+    g.stroke();
+  };
+  curve(state.spectra.error, css('--error'));
+  curve(state.spectra.output, css('--processed'));
+}
+
+function spectrumReadout(ev) {
+  if (!state.spectra || !state.info) return;
+  const c = $('spectrum');
+  const r = c.getBoundingClientRect();
+  const nyq = state.info.sampleRate / 2;
+  const f = SPEC.fmin * Math.exp(((ev.clientX - r.left) / r.width) * Math.log(nyq / SPEC.fmin));
+  const k = Math.min(state.spectra.output.length - 1, Math.round(f / (state.info.sampleRate / state.fftSize)));
+  $('spec-readout').textContent = `${f < 1000 ? f.toFixed(0) + ' Hz' : (f / 1000).toFixed(2) + ' kHz'} · ` +
+    `processed ${state.spectra.output[k].toFixed(1)} dBFS · error ${state.spectra.error[k].toFixed(1)} dBFS`;
+}
+
+function drawMeters() {
+  const r = state.report;
+  if (!r) return;
+  const m = (label, value, cls = '') => el('div', { class: `meter ${cls}` }, el('span', {}, label), el('b', {}, value));
+  $('meters').replaceChildren(
+    m('Peak', `${r.output.peak_dbfs.toFixed(2)} dBFS`),
+    m('RMS', `${r.output.rms_dbfs.toFixed(2)} dBFS`),
+    m('Clipped', `${r.clipped.toLocaleString('en')}`, r.clipped > 0 ? 'warn' : ''),
+    m('SQNR', fmtDb(r.sqnr_db), 'sqnr'),
+    m('Theory', r.theory_sqnr_db === null || r.theory_sqnr_db === undefined ? 'n/a' : fmtDb(r.theory_sqnr_db)),
+    m('Rate', `${r.export_rate.toLocaleString('en')} Hz`),
+  );
+}
+
+function drawAll() {
+  drawWave();
+  drawSpectrum();
+  drawMeters();
+  drawBudget();
+}
+
+function setupViews() {
+  const wave = $('wave');
+  let drag = null;
+  const frameAt = (ev) => {
+    const r = wave.getBoundingClientRect();
+    const { start, end } = viewRange();
+    return Math.round(start + ((ev.clientX - r.left) / r.width) * (end - start));
+  };
+  wave.addEventListener('pointerdown', (ev) => { drag = frameAt(ev); wave.setPointerCapture(ev.pointerId); });
+  wave.addEventListener('pointermove', (ev) => {
+    if (drag === null) return;
+    const f = frameAt(ev);
+    state.loop = { start: Math.max(0, Math.min(drag, f)), end: Math.min(state.info.frames, Math.max(drag, f)) };
+    drawWave();
+  });
+  wave.addEventListener('pointerup', () => {
+    drag = null;
+    if (state.loop && state.loop.end - state.loop.start < 64) state.loop = null;
+    audio.loopChanged();
+    drawWave();
+  });
+  wave.addEventListener('wheel', (ev) => {
+    if (!state.info) return;
+    ev.preventDefault();
+    const { start, end } = viewRange();
+    const r = wave.getBoundingClientRect();
+    const centre = start + ((ev.clientX - r.left) / r.width) * (end - start);
+    const span = Math.min(state.info.frames, Math.max(256, (end - start) * (ev.deltaY > 0 ? 1.25 : 0.8)));
+    let s = Math.round(centre - (centre - start) * (span / (end - start)));
+    s = Math.max(0, Math.min(state.info.frames - span, s));
+    state.view = { start: s, end: Math.round(s + span) };
+    refreshEnvelope();
+  }, { passive: false });
+  $('spectrum').addEventListener('pointermove', spectrumReadout);
+  window.addEventListener('resize', () => { refreshEnvelope(); drawSpectrum(); });
+}
+
+function refreshEnvelope() {
+  if (!state.report) return;
+  call('envelope', { view: { ...viewRange(), columns: waveColumns() } }).then((msg) => { state.env = msg.env; drawWave(); })
+    .catch(() => {});
+}
+
+// ---------------------------------------------------------------------------------------------------------------------
+// Audition: source → monitor gain → safety limiter → destination. The limiter is on this path only.
+// ---------------------------------------------------------------------------------------------------------------------
+const audio = {
+  ctx: null,
+  node: null,
+  playing: false,
+  startedAt: 0,
+  offset: 0,
+  buffers: {},
+
+  ensure() {
+    if (this.ctx) return;
+    const ctx = new AudioContext();
+    this.ctx = ctx;
+    this.monitor = new GainNode(ctx, { gain: dbToGain(+$('monitor').value) });
+    // Safety limiter: a fast, hard-kneed compressor, then a static clipper at −3 dBFS for anything it lets through.
+    this.limiter = new DynamicsCompressorNode(ctx, { threshold: -12, knee: 0, ratio: 20, attack: 0.001, release: 0.1 });
+    const curve = new Float32Array(1025);
+    const ceiling = dbToGain(-3);
+    for (let i = 0; i < curve.length; i++) curve[i] = Math.max(-ceiling, Math.min(ceiling, (i / 512 - 1) * 1.0));
+    this.clipper = new WaveShaperNode(ctx, { curve });
+    this.monitor.connect(this.limiter).connect(this.clipper).connect(ctx.destination);
+    window.stairstepAudio = this;
+  },
+
+  newSource() { this.stop(); this.buffers = {}; },
+
+  buffer(which) {
+    if (this.buffers[which]) return this.buffers[which];
+    const data = which === 'input' ? state.input : which === 'output' ? state.output : errorSignal();
+    if (!data || !this.ctx) return null;
+    const b = new AudioBuffer({ numberOfChannels: data.length, length: Math.max(1, data[0].length),
+      sampleRate: state.info.sampleRate });
+    data.forEach((ch, i) => b.copyToChannel(ch, i));
+    this.buffers[which] = b;
+    return b;
+  },
+
+  listen() { return document.querySelector('input[name=listen]:checked').value; },
+
+  position() {
+    if (!this.playing) return this.offset;
+    const b = this.node.buffer;
+    let t = (this.ctx.currentTime - this.startedAt) * b.sampleRate + this.offset;
+    const ls = this.node.loop ? this.node.loopStart * b.sampleRate : 0;
+    const le = this.node.loop ? (this.node.loopEnd || b.duration) * b.sampleRate : b.length;
+    if (this.node.loop && t >= le) t = ls + ((t - ls) % (le - ls));
+    return Math.min(t, b.length);
+  },
+
+  start(atFrame) {
+    this.ensure();
+    const b = this.buffer(this.listen());
+    if (!b) return;
+    const node = new AudioBufferSourceNode(this.ctx, { buffer: b });
+    const sr = b.sampleRate;
+    node.loop = $('loop').checked;
+    if (state.loop) { node.loopStart = state.loop.start / sr; node.loopEnd = state.loop.end / sr; }
+    const fade = new GainNode(this.ctx, { gain: 0 });
+    node.connect(fade).connect(this.monitor);
+    const t = this.ctx.currentTime;
+    fade.gain.setTargetAtTime(1, t, 0.005);
+    let from = atFrame ?? (state.loop ? state.loop.start : 0);
+    if (state.loop && (from < state.loop.start || from >= state.loop.end)) from = state.loop.start;
+    node.start(t, from / sr);
+    node.onended = () => { if (this.node === node) { this.playing = false; updatePlayButton(); } };
+    this.retire();
+    this.node = node;
+    this.fade = fade;
+    this.startedAt = t;
+    this.offset = from;
+    this.playing = true;
+    updatePlayButton();
+    this.ctx.resume();
+    tick();
+  },
+
+  retire() {
+    if (!this.node) return;
+    const { node, fade } = this;
+    fade.gain.setTargetAtTime(0, this.ctx.currentTime, 0.005);
+    node.onended = null;
+    node.stop(this.ctx.currentTime + 0.05);
+  },
+
+  stop() {
+    if (!this.playing) return;
+    this.offset = this.position();
+    this.retire();
+    this.node = null;
+    this.playing = false;
+    updatePlayButton();
+  },
+
+  toggle() { if (this.playing) { this.stop(); this.offset = 0; } else this.start(); },
+
+  // New render while playing: swap buffers in place, from the same position, with a short crossfade.
+  refresh() {
+    delete this.buffers.output;
+    delete this.buffers.error;
+    if (this.playing && this.listen() !== 'input') this.start(this.position());
+  },
+
+  loopChanged() { if (this.playing) this.start(this.position()); },
+};
+
+function errorSignal() {
+  if (state.errorSignal) return state.errorSignal;
+  if (!state.output) return null;
+  state.errorSignal = state.output.map((o, c) => {
+    const x = state.input[c];
+    const e = new Float32Array(o.length);
+    for (let i = 0; i < o.length; i++) e[i] = o[i] - (Number.isFinite(x[i]) ? x[i] : 0);
+    return e;
+  });
+  return state.errorSignal;
+}
+
+function dbToGain(db) { return Math.pow(10, db / 20); }
+
+function updatePlayButton() { $('play').textContent = audio.playing ? '■ Stop' : '▶ Play'; }
+
+let ticking = false;
+function tick() {
+  if (ticking) return;
+  ticking = true;
+  const step = () => {
+    drawWave();
+    if (audio.playing) requestAnimationFrame(step); else { ticking = false; drawWave(); }
+  };
+  requestAnimationFrame(step);
+}
+
+function setupAudition() {
+  $('play').onclick = () => audio.toggle();
+  document.addEventListener('keydown', (ev) => {
+    const typing = ev.target.closest('input[type=number], input[type=text], select, textarea');
+    if (ev.code === 'Space' && !typing) { ev.preventDefault(); audio.toggle(); }
+  });
+  document.querySelectorAll('input[name=listen]').forEach((r) => r.addEventListener('change', () => {
+    if (audio.playing) audio.start(audio.position());
+  }));
+  $('loop').onchange = () => { if (audio.playing) audio.start(audio.position()); };
+  $('monitor').oninput = () => {
+    const db = +$('monitor').value;
+    $('monitor-out').textContent = `${db < 0 ? '−' : ''}${Math.abs(db)} dB`;
+    if (audio.monitor) audio.monitor.gain.setTargetAtTime(dbToGain(db), audio.ctx.currentTime, 0.02);
+  };
+}
+
+// ---------------------------------------------------------------------------------------------------------------------
+// Start-up
+// ---------------------------------------------------------------------------------------------------------------------
+async function openFile(f) {
+  const bytes = await f.arrayBuffer();
+  const head = new Uint8Array(bytes, 0, Math.min(12, bytes.byteLength));
+  const isWav = String.fromCharCode(...head.slice(0, 4)) === 'RIFF' && String.fromCharCode(...head.slice(8, 12)) === 'WAVE';
+  if (isWav) return loadSource({ wav: bytes }, f.name, [bytes]);
+  // Anything else: let the browser decode it. decodeAudioData resamples to the context's rate, so ask for a context
+  // at a common rate and say so.
+  try {
+    const ctx = new OfflineAudioContext(1, 1, 48000);
+    const b = await ctx.decodeAudioData(bytes);
+    const inter = new Float32Array(b.length * b.numberOfChannels);
+    for (let c = 0; c < b.numberOfChannels; c++) {
+      const d = b.getChannelData(c);
+      for (let i = 0; i < b.length; i++) inter[i * b.numberOfChannels + c] = d[i];
+    }
+    await loadSource({ sampleRate: b.sampleRate, channels: b.numberOfChannels, interleaved: inter }, f.name,
+      [inter.buffer]);
+    setStatus(`${f.name} was decoded by the browser at ${b.sampleRate} Hz (its own rate may differ).`);
+  } catch (err) {
+    setStatus(`Could not read ${f.name}: not a WAV file and the browser cannot decode it. The current sound is unchanged.`, 'error');
+  }
+}
+
+async function main() {
+  setupChainTools();
+  setupViews();
+  setupAudition();
+  renderChain();
+  renderExport();
+  $('download').onclick = doExport;
+  $('file').onchange = (e) => { const f = e.target.files[0]; e.target.value = ''; if (f) openFile(f); };
+  document.addEventListener('dragover', (e) => e.preventDefault());
+  document.addEventListener('drop', (e) => { e.preventDefault(); const f = e.dataTransfer.files[0]; if (f) openFile(f); });
+  setStatus('Starting the engine…');
+  const ready = await call('init', { wasm: wasmBytes.buffer }, [wasmBytes.buffer]);
+  const demo = $('demo');
+  for (const d of ready.demos) demo.append(el('option', { value: d }, d));
+  demo.onchange = () => loadSource({ demo: demo.value }, demo.value);
+  await loadSource({ demo: ready.demos[0] }, ready.demos[0]);
+  document.body.dataset.ready = 'true';
+}
+
+main().catch((err) => setStatus(`Start-up failed: ${err.message}`, 'error'));

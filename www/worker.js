@@ -1,0 +1,80 @@
+// Stairstep processing worker, a classic worker script. The build prepends wasm-bindgen's no-modules glue, which
+// defines the global `wasm_bindgen` (with `initSync` and `Session`).
+// All DSP runs here, so the page never freezes. Messages in: init, load, render; out: ready, loaded, rendered, error.
+
+const { initSync, Session } = wasm_bindgen;
+let session = null;
+
+function reply(type, payload, transfer = []) {
+  self.postMessage({ type, ...payload }, transfer);
+}
+
+function describe(info) {
+  const d = JSON.parse(info);
+  const input = [];
+  for (let c = 0; c < d.channels; c++) input.push(session.samples('input', c));
+  return { info: d, input };
+}
+
+const handlers = {
+  init(msg) {
+    initSync({ module: msg.wasm });
+    session = new Session();
+    reply('ready', { id: msg.id, demos: JSON.parse(Session.demoNames()) });
+  },
+
+  load(msg) {
+    let info;
+    if (msg.demo) info = session.loadDemo(msg.demo);
+    else if (msg.wav) info = session.loadWav(new Uint8Array(msg.wav));
+    else info = session.loadSamples(msg.sampleRate, msg.channels, msg.interleaved);
+    const d = describe(info);
+    reply('loaded', { id: msg.id, ...d, name: msg.name }, d.input.map((a) => a.buffer));
+  },
+
+  render(msg) {
+    const t0 = performance.now();
+    session.setPreset(msg.preset);
+    const report = JSON.parse(session.render());
+    const v = msg.view;
+    const spectra = {};
+    for (const which of ['input', 'output', 'error']) spectra[which] = session.spectrum(which, v.fftSize, v.window);
+    const env = {
+      input: session.envelope('input', 0, v.start, v.end, v.columns),
+      output: session.envelope('output', 0, v.start, v.end, v.columns),
+    };
+    const output = [];
+    for (let c = 0; c < report.channels; c++) output.push(session.samples('output', c));
+    let file = null;
+    if (msg.withFile) file = session.exportFile();
+    const ms = performance.now() - t0;
+    const transfer = [...Object.values(spectra), ...Object.values(env), ...output].map((a) => a.buffer);
+    if (file) transfer.push(file.buffer);
+    reply('rendered', { id: msg.id, report, spectra, env, output, file, ms }, transfer);
+  },
+
+  envelope(msg) {
+    const v = msg.view;
+    const env = {
+      input: session.envelope('input', 0, v.start, v.end, v.columns),
+      output: session.envelope('output', 0, v.start, v.end, v.columns),
+    };
+    reply('envelope', { id: msg.id, env }, [env.input.buffer, env.output.buffer]);
+  },
+
+  export(msg) {
+    session.setPreset(msg.preset);
+    session.render();
+    const file = session.exportFile();
+    reply('exported', { id: msg.id, file }, [file.buffer]);
+  },
+};
+
+self.onmessage = (e) => {
+  const msg = e.data;
+  try {
+    handlers[msg.type](msg);
+  } catch (err) {
+    reply('error', { id: msg.id, request: msg.type, message: String(err && err.message ? err.message : err) });
+  }
+};
