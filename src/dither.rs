@@ -86,7 +86,7 @@ impl Dither {
 
     /// Next dither value in LSB.
     #[inline]
-    pub fn next(&mut self) -> f64 {
+    pub fn sample(&mut self) -> f64 {
         match self.kind {
             DitherKind::None => 0.0,
             DitherKind::Rpdf => 2.0 * self.peak * self.rng.uniform_centered(),
@@ -219,7 +219,7 @@ mod tests {
         let n = 400_000;
         let (mut s, mut s2, mut lo, mut hi) = (0.0, 0.0, f64::MAX, f64::MIN);
         for _ in 0..n {
-            let v = d.next();
+            let v = d.sample();
             s += v;
             s2 += v * v;
             lo = lo.min(v);
@@ -246,9 +246,9 @@ mod tests {
     #[test]
     fn reset_replays_the_same_stream() {
         let mut d = Dither::new(DitherKind::HighpassTpdf, Some(0.7), 99, 3).unwrap();
-        let a: Vec<f64> = (0..100).map(|_| d.next()).collect();
+        let a: Vec<f64> = (0..100).map(|_| d.sample()).collect();
         d.reset();
-        let b: Vec<f64> = (0..100).map(|_| d.next()).collect();
+        let b: Vec<f64> = (0..100).map(|_| d.sample()).collect();
         assert_eq!(a, b);
     }
 

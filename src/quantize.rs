@@ -174,7 +174,7 @@ impl Quantizer {
     pub fn quantize_sample(&mut self, x: f32) -> f32 {
         let x = if x.is_nan() { 0.0 } else { x as f64 };
         let v = x * self.inv_step - self.offset - self.shaper.feedback();
-        let t = v + self.dither.next();
+        let t = v + self.dither.sample();
         let mut k = if self.truncate { t.floor() } else { t.round() };
         if k > self.kmax {
             k = self.kmax;

@@ -46,11 +46,18 @@ fn never_overwrites_without_force_and_reports_errors_with_exit_codes() {
     assert!(String::from_utf8_lossy(&again.stderr).contains("--force"));
     assert!(run(&["demo", "-o", "a.wav", "--force"], dir.path()).status.success());
 
-    std::fs::write(dir.path().join("bad.json"), r#"{"format":"stairstep-preset","version":1,"stages":[{"kind":"quantize","bits":99}]}"#)
-        .unwrap();
+    std::fs::write(
+        dir.path().join("bad.json"),
+        r#"{"format":"stairstep-preset","version":1,"stages":[{"kind":"quantize","bits":99}]}"#,
+    )
+    .unwrap();
     let bad = run(&["render", "--preset", "bad.json", "a.wav", "-o", "b.wav"], dir.path());
     assert_eq!(bad.status.code(), Some(2));
-    assert!(String::from_utf8_lossy(&bad.stderr).contains("stages[0].bits"), "{}", String::from_utf8_lossy(&bad.stderr));
+    assert!(
+        String::from_utf8_lossy(&bad.stderr).contains("stages[0].bits"),
+        "{}",
+        String::from_utf8_lossy(&bad.stderr)
+    );
 
     std::fs::write(dir.path().join("p.json"), r#"{"format":"stairstep-preset","version":1}"#).unwrap();
     std::fs::write(dir.path().join("junk.wav"), b"not a wav").unwrap();

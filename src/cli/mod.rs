@@ -15,7 +15,11 @@ pub const EXIT_INPUT: u8 = 3;
 pub const EXIT_OUTPUT: u8 = 4;
 
 #[derive(Parser)]
-#[command(name = "stairstep", version, about = "Bit-crush and quantization sandbox: render, measure and export low-bit sound assets.")]
+#[command(
+    name = "stairstep",
+    version,
+    about = "Bit-crush and quantization sandbox: render, measure and export low-bit sound assets."
+)]
 struct Cli {
     #[command(subcommand)]
     command: Command,
@@ -115,7 +119,8 @@ fn run(cli: Cli) -> Result<(), Failure> {
     match cli.command {
         Command::Demo { name, output, force } => {
             let clip = demo::demo(&name).map_err(|e| Failure::new(EXIT_USAGE, e.to_string()))?;
-            let bytes = io::ExportFormat::default().encode(&clip).map_err(|e| Failure::new(EXIT_OUTPUT, e.to_string()))?;
+            let bytes =
+                io::ExportFormat::default().encode(&clip).map_err(|e| Failure::new(EXIT_OUTPUT, e.to_string()))?;
             write_atomic(&output, &bytes, force)?;
             eprintln!("wrote {} ({name}, {:.2} s, {} Hz)", output.display(), clip.duration_s(), clip.sample_rate);
             Ok(())
@@ -123,7 +128,10 @@ fn run(cli: Cli) -> Result<(), Failure> {
         Command::Render { preset, input, output, force } => {
             let preset = load_preset(&preset)?;
             if same_file(&input, &output) {
-                return Err(Failure::new(EXIT_OUTPUT, format!("{}: refusing to overwrite the input", output.display())));
+                return Err(Failure::new(
+                    EXIT_OUTPUT,
+                    format!("{}: refusing to overwrite the input", output.display()),
+                ));
             }
             let clip = io::wav::read(&read_file(&input)?).map_err(input_err(&input))?;
             let r = chain::render(&preset, &clip).map_err(input_err(&input))?;

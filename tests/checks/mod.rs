@@ -30,7 +30,11 @@ pub fn sqnr_follows_six_db_per_bit() {
         let formula = full_scale_sine_sqnr_db(bits);
         for (grid, amp, want) in [
             (Grid::MidRise, 1.0 - 1e-6, formula),
-            (Grid::MidTread, (1.0 - 0.5f64.powi(bits as i32)) * (1.0 - 1e-6), formula + 20.0 * (1.0 - 0.5f64.powi(bits as i32)).log10()),
+            (
+                Grid::MidTread,
+                (1.0 - 0.5f64.powi(bits as i32)) * (1.0 - 1e-6),
+                formula + 20.0 * (1.0 - 0.5f64.powi(bits as i32)).log10(),
+            ),
         ] {
             let x = sine(1 << 16, 0.012_345_6, amp);
             let mut q = Quantizer::new(&QuantizeParams { grid, ..QuantizeParams::bits(bits) }, 0, 0).unwrap();
