@@ -74,7 +74,7 @@ pub fn error_power(reference: &[f32], output: &[f32]) -> f64 {
 
 /// Signal-to-quantization-noise ratio in dB: `10·log10(Σ ref² / Σ (out − ref)²)` over all channels.
 /// An error of exactly zero reads `+240 dB`.
-pub fn sqnr_db<C: AsRef<[f32]>>(reference: &[C], output: &[C]) -> f64 {
+pub fn sqnr_db<A: AsRef<[f32]>, B: AsRef<[f32]>>(reference: &[A], output: &[B]) -> f64 {
     let (mut ps, mut pe) = (0f64, 0f64);
     for (r, o) in reference.iter().zip(output) {
         for (&r, &o) in r.as_ref().iter().zip(o.as_ref()) {

@@ -7,9 +7,11 @@
 
 pub mod levels;
 pub mod spectrum;
+pub mod sweep;
 
 pub use levels::{envelope, sqnr_db, Levels};
 pub use spectrum::{SpectrumAnalyzer, Window};
+pub use sweep::{sqnr_sweep, SweepPoint};
 
 /// Level reported for silence, in dB.
 pub const FLOOR_DB: f64 = -240.0;
