@@ -59,6 +59,9 @@ pub struct Preset {
     /// A name for people.
     #[serde(default)]
     pub name: String,
+    /// What the preset is for, in a sentence.
+    #[serde(default, skip_serializing_if = "String::is_empty")]
+    pub description: String,
     /// Seed of every random generator in the chain (dither). Same preset and seed, same bytes.
     #[serde(default = "default_seed")]
     pub seed: u64,
@@ -80,6 +83,7 @@ impl Default for Preset {
             format: PRESET_FORMAT.into(),
             version: PRESET_VERSION,
             name: String::new(),
+            description: String::new(),
             seed: default_seed(),
             stages: Vec::new(),
             export: ExportFormat::default(),
@@ -120,6 +124,32 @@ impl Preset {
     }
 }
 
+/// The built-in presets, shared by the page and the CLI.
+pub fn builtin() -> Vec<Preset> {
+    use crate::dither::DitherKind;
+    use crate::io::WavEncoding;
+    let q = |p: QuantizeParams| StageSpec::Quantize(p);
+    let make = |name: &str, description: &str, stages: Vec<StageSpec>, encoding: WavEncoding| Preset {
+        description: description.into(),
+        export: ExportFormat::Wav { encoding },
+        ..Preset::with_stages(name, stages)
+    };
+    vec![
+        make(
+            "clean-8",
+            "8-bit with TPDF dither: the quietest honest 8-bit",
+            vec![q(QuantizeParams { dither: DitherKind::Tpdf, ..QuantizeParams::bits(8) })],
+            WavEncoding::PcmU8,
+        ),
+        make(
+            "grit-4",
+            "4-bit plain rounding: hard, buzzy, signal-dependent error",
+            vec![q(QuantizeParams::bits(4))],
+            WavEncoding::PcmS16,
+        ),
+    ]
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -148,6 +178,17 @@ mod tests {
         assert!(e.unwrap_err().to_string().contains("bitz"));
         let e = Preset::from_json(r#"{"format":"stairstep-preset","version":1,"stages":[{"kind":"flanger"}]}"#);
         assert!(e.unwrap_err().to_string().contains("flanger"));
+    }
+
+    #[test]
+    fn builtin_presets_are_valid_and_uniquely_named() {
+        let all = builtin();
+        let mut names: Vec<&str> = all.iter().map(|p| p.name.as_str()).collect();
+        names.dedup();
+        assert_eq!(names.len(), all.len());
+        for p in &all {
+            Preset::from_json(&p.to_json()).unwrap();
+        }
     }
 
     #[test]

@@ -1,24 +1,31 @@
-//! Command-line interface (native only).
+//! Command-line interface (native only). One file per command; shared helpers here.
 
+mod analyze;
+mod render;
 mod serve;
 
 use clap::{Parser, Subcommand};
-use stairstep::{chain, demo, io, Error, Preset};
+use stairstep::{demo, io, preset, Preset};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
 /// Exit code for usage errors (bad arguments, bad preset).
 pub const EXIT_USAGE: u8 = 2;
-/// Exit code for input errors (unreadable or malformed input).
+/// Exit code for input errors (unreadable or malformed input; in a batch: any file failed).
 pub const EXIT_INPUT: u8 = 3;
 /// Exit code for output errors (cannot write, would overwrite).
 pub const EXIT_OUTPUT: u8 = 4;
+
+const EXIT_CODES: &str =
+    "Exit codes: 0 success; 2 usage or preset error; 3 input error (in a batch: one or more files \
+failed); 4 output error (cannot write, or the output exists and --force was not given).";
 
 #[derive(Parser)]
 #[command(
     name = "stairstep",
     version,
-    about = "Bit-crush and quantization sandbox: render, measure and export low-bit sound assets."
+    about = "Bit-crush and quantization sandbox: render, measure and export low-bit sound assets.",
+    after_help = EXIT_CODES
 )]
 struct Cli {
     #[command(subcommand)]
@@ -27,10 +34,20 @@ struct Cli {
 
 #[derive(Subcommand)]
 enum Command {
+    /// Render sounds through a preset and write the exports (one file, many, or whole folders).
+    #[command(after_help = render::HELP)]
+    Render(render::Args),
+    /// Measure a sound: levels, clipping, spectrum summary and, against a reference, the SQNR.
+    #[command(after_help = analyze::ANALYZE_HELP)]
+    Analyze(analyze::AnalyzeArgs),
+    /// Measured SQNR against word length (1 to 24 bits) beside the theory lines.
+    #[command(after_help = analyze::SWEEP_HELP)]
+    Sweep(analyze::SweepArgs),
     /// Write a built-in demo sound as a WAV file.
-    #[command(after_help = "Examples:\n  stairstep demo -o chime.wav\n  stairstep demo tone -o tone.wav")]
+    #[command(after_help = "Demos: chime-loop, drum-hit, pad, sweep, tone (all synthesised, 48 kHz).\n\n\
+        Examples:\n  stairstep demo -o chime.wav\n  stairstep demo tone -o tone.wav")]
     Demo {
-        /// Which demo: chime-loop, drum-hit, pad, sweep, tone.
+        /// Which demo.
         #[arg(default_value = demo::DEMOS[0])]
         name: String,
         /// Output file.
@@ -40,33 +57,25 @@ enum Command {
         #[arg(long)]
         force: bool,
     },
-    /// Render a sound through a preset and write the export.
-    #[command(after_help = "Examples:\n  stairstep render --preset crush.json in.wav -o out.wav")]
-    Render {
-        /// Preset JSON file.
-        #[arg(short, long)]
-        preset: PathBuf,
-        /// Input WAV file.
-        input: PathBuf,
-        /// Output file.
-        #[arg(short, long)]
-        output: PathBuf,
-        /// Replace the output file if it exists.
-        #[arg(long)]
-        force: bool,
+    /// List the built-in presets, or print one as JSON.
+    #[command(after_help = "Examples:\n  stairstep presets\n  stairstep presets handheld > my.json")]
+    Presets {
+        /// Print this preset's JSON.
+        name: Option<String>,
     },
     /// Serve the offline page on 127.0.0.1 and print its URL.
     Serve {
         /// The page to serve.
         #[arg(long, default_value = "dist/stairstep.html")]
         page: PathBuf,
-        /// Port (0 = any free port).
+        /// Port (falls back to any free port when taken).
         #[arg(long, default_value_t = 8737)]
         port: u16,
     },
 }
 
 /// An error with the exit code it maps to.
+#[derive(Debug)]
 pub struct Failure {
     code: u8,
     message: String,
@@ -78,22 +87,25 @@ impl Failure {
     }
 }
 
-fn input_err(path: &Path) -> impl Fn(Error) -> Failure + '_ {
-    move |e| Failure::new(EXIT_INPUT, format!("{}: {e}", path.display()))
-}
-
 fn read_file(path: &Path) -> Result<Vec<u8>, Failure> {
     std::fs::read(path).map_err(|e| Failure::new(EXIT_INPUT, format!("{}: {e}", path.display())))
 }
 
-fn load_preset(path: &Path) -> Result<Preset, Failure> {
+/// Reads a preset file, or a built-in preset by name.
+fn load_preset(arg: &str) -> Result<Preset, Failure> {
+    let path = Path::new(arg);
+    if !path.exists() {
+        if let Some(p) = preset::builtin().into_iter().find(|p| p.name == arg) {
+            return Ok(p);
+        }
+    }
     let text = String::from_utf8(read_file(path)?)
         .map_err(|_| Failure::new(EXIT_USAGE, format!("{}: not UTF-8 text", path.display())))?;
     Preset::from_json(&text).map_err(|e| Failure::new(EXIT_USAGE, format!("{}: {e}", path.display())))
 }
 
-/// Writes `bytes` to `path` atomically: a temporary file in the same folder, then a rename. Refuses to replace an
-/// existing file unless `force`.
+/// Writes `bytes` to `path` atomically: a temporary file in the same folder, then a rename, so an interrupted run
+/// leaves no half-written file under the real name. Refuses to replace an existing file unless `force`.
 pub fn write_atomic(path: &Path, bytes: &[u8], force: bool) -> Result<(), Failure> {
     use std::io::Write;
     let fail = |e: std::io::Error| Failure::new(EXIT_OUTPUT, format!("{}: {e}", path.display()));
@@ -102,11 +114,14 @@ pub fn write_atomic(path: &Path, bytes: &[u8], force: bool) -> Result<(), Failur
     }
     let dir = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
     let name = path.file_name().ok_or_else(|| Failure::new(EXIT_OUTPUT, "output path has no file name"))?;
-    let tmp = dir.join(format!(".{}.{}.tmp", name.to_string_lossy(), std::process::id()));
+    let tmp = dir.join(format!(".{}.{}.stairstep-tmp", name.to_string_lossy(), std::process::id()));
     let result = (|| {
         let mut f = std::fs::File::create(&tmp)?;
         f.write_all(bytes)?;
         f.sync_all()?;
+        if !force && path.exists() {
+            return Err(std::io::Error::new(std::io::ErrorKind::AlreadyExists, "exists (use --force to replace it)"));
+        }
         std::fs::rename(&tmp, path)
     })();
     if result.is_err() {
@@ -117,6 +132,9 @@ pub fn write_atomic(path: &Path, bytes: &[u8], force: bool) -> Result<(), Failur
 
 fn run(cli: Cli) -> Result<(), Failure> {
     match cli.command {
+        Command::Render(args) => render::run(args),
+        Command::Analyze(args) => analyze::analyze(args),
+        Command::Sweep(args) => analyze::sweep(args),
         Command::Demo { name, output, force } => {
             let clip = demo::demo(&name).map_err(|e| Failure::new(EXIT_USAGE, e.to_string()))?;
             let bytes =
@@ -125,35 +143,21 @@ fn run(cli: Cli) -> Result<(), Failure> {
             eprintln!("wrote {} ({name}, {:.2} s, {} Hz)", output.display(), clip.duration_s(), clip.sample_rate);
             Ok(())
         }
-        Command::Render { preset, input, output, force } => {
-            let preset = load_preset(&preset)?;
-            if same_file(&input, &output) {
-                return Err(Failure::new(
-                    EXIT_OUTPUT,
-                    format!("{}: refusing to overwrite the input", output.display()),
-                ));
+        Command::Presets { name: None } => {
+            for p in preset::builtin() {
+                println!("{:<16} {}", p.name, p.description);
             }
-            let clip = io::wav::read(&read_file(&input)?).map_err(input_err(&input))?;
-            let r = chain::render(&preset, &clip).map_err(input_err(&input))?;
-            let bytes = preset.export.encode(&r.export).map_err(|e| Failure::new(EXIT_OUTPUT, e.to_string()))?;
-            write_atomic(&output, &bytes, force)?;
-            eprintln!(
-                "wrote {} ({} bytes, peak {:.2} dBFS, {} clipped)",
-                output.display(),
-                bytes.len(),
-                r.report.output.peak_dbfs,
-                r.report.clipped
-            );
+            Ok(())
+        }
+        Command::Presets { name: Some(name) } => {
+            let p = preset::builtin().into_iter().find(|p| p.name == name).ok_or_else(|| {
+                let names: Vec<String> = preset::builtin().into_iter().map(|p| p.name).collect();
+                Failure::new(EXIT_USAGE, format!("no built-in preset {name:?}; there are: {}", names.join(", ")))
+            })?;
+            println!("{}", p.to_json());
             Ok(())
         }
         Command::Serve { page, port } => serve::serve(&page, port),
-    }
-}
-
-fn same_file(a: &Path, b: &Path) -> bool {
-    match (a.canonicalize(), b.canonicalize()) {
-        (Ok(a), Ok(b)) => a == b,
-        _ => false,
     }
 }
 
