@@ -18,6 +18,7 @@
 pub mod analysis;
 pub mod audio;
 pub mod chain;
+pub mod clip;
 pub mod demo;
 pub mod dither;
 pub mod error;
