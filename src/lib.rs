@@ -19,6 +19,7 @@ pub mod analysis;
 pub mod audio;
 pub mod chain;
 pub mod clip;
+pub mod companding;
 pub mod demo;
 pub mod dither;
 pub mod error;
