@@ -24,6 +24,7 @@ pub mod demo;
 pub mod dither;
 pub mod error;
 pub mod io;
+pub mod minifloat;
 pub mod preset;
 pub mod quantize;
 pub mod rng;
