@@ -18,10 +18,13 @@
 pub mod analysis;
 pub mod audio;
 pub mod chain;
+pub mod clip;
+pub mod companding;
 pub mod demo;
 pub mod dither;
 pub mod error;
 pub mod io;
+pub mod minifloat;
 pub mod preset;
 pub mod quantize;
 pub mod rng;
