@@ -5,7 +5,10 @@
 
 use crate::analysis::{sqnr_db, Levels};
 use crate::audio::Clip;
+use crate::clip::Gain;
+use crate::companding::{Compander, G711};
 use crate::error::{Error, Result};
+use crate::minifloat::Minifloat;
 use crate::preset::{Preset, StageSpec};
 use crate::quantize::Quantizer;
 use serde::Serialize;
@@ -23,8 +26,10 @@ pub trait Stage: Send {
     fn clipped(&self) -> u64 {
         0
     }
-    /// Expected mean-square error this stage adds for a busy, unclipped signal, where a simple formula exists.
-    fn theory_error_power(&self) -> Option<f64> {
+    /// The SQNR in dB a formula predicts for this stage on a busy, unclipped input of mean square `input_ms`, where
+    /// a simple formula exists (see each stage's docs for its conditions).
+    fn theory_sqnr_db(&self, input_ms: f64) -> Option<f64> {
+        let _ = input_ms;
         None
     }
 }
@@ -39,15 +44,19 @@ impl Stage for Quantizer {
     fn clipped(&self) -> u64 {
         Quantizer::clipped(self)
     }
-    fn theory_error_power(&self) -> Option<f64> {
-        Some(Quantizer::theory_error_power(self))
+    fn theory_sqnr_db(&self, input_ms: f64) -> Option<f64> {
+        Some(crate::analysis::power_db(input_ms / Quantizer::theory_error_power(self)))
     }
 }
 
 /// Builds the run-time stage for one channel. `stream` distinguishes channels for seeded generators.
 fn build_stage(spec: &StageSpec, seed: u64, stream: u64) -> Result<Box<dyn Stage>> {
     Ok(match spec {
+        StageSpec::Gain(p) => Box::new(Gain::new(p)?),
         StageSpec::Quantize(p) => Box::new(Quantizer::new(p, seed, stream)?),
+        StageSpec::G711(p) => Box::new(G711::new(p)?),
+        StageSpec::Compand(p) => Box::new(Compander::new(p)?),
+        StageSpec::Minifloat(p) => Box::new(Minifloat::new(p)?),
     })
 }
 
@@ -81,9 +90,9 @@ pub struct RenderReport {
     pub output: Levels,
     /// Measured SQNR in dB: input power over the power of (output − input), all channels.
     pub sqnr_db: f64,
-    /// The SQNR theory predicts for this input, where a simple formula applies: the chain's only active stage is a
-    /// uniform quantizer, and nothing clipped. Input power over the quantizer's expected error power (Δ²/12 plus
-    /// dither, times the noise-shaping gain).
+    /// The SQNR theory predicts for this input, where a simple formula applies: the chain has one active stage that
+    /// has a formula, and nothing clipped. Uniform quantizer: input power over Δ²/12 plus the dither's variance, times
+    /// the noise-shaping gain. Compander and minifloat: their level-independent formulas (see their docs).
     pub theory_sqnr_db: Option<f64>,
     /// Why there is no theory figure, when there is none.
     pub theory_note: Option<String>,
@@ -208,15 +217,15 @@ impl Chain {
         let note = |s: &str| (None, Some(s.to_string()));
         match active.as_slice() {
             [] => note("no active stage: the output equals the input"),
-            [only] => match only.theory_error_power() {
-                None => note("no simple formula for this stage: measured only"),
-                Some(_) if clipped > 0 => note("the quantizer clipped: the formula assumes no overload"),
-                Some(p) => {
-                    // Mean square of the input, from its sine-referenced RMS (rms_dbfs is 10·log10(2·ms)).
-                    let ms = 10f64.powf(input.rms_dbfs / 10.0) / 2.0;
-                    (Some(crate::analysis::power_db(ms / p)), None)
+            [only] => {
+                // Mean square of the input, from its sine-referenced RMS (rms_dbfs is 10·log10(2·ms)).
+                let ms = 10f64.powf(input.rms_dbfs / 10.0) / 2.0;
+                match only.theory_sqnr_db(ms) {
+                    None => note("no simple formula for this stage: measured only"),
+                    Some(_) if clipped > 0 => note("the stage clipped: the formula assumes no overload"),
+                    Some(t) => (Some(t), None),
                 }
-            },
+            }
             _ => note("several active stages: no simple formula, measured only"),
         }
     }

@@ -394,6 +394,9 @@ impl Stage for Compander {
     fn process(&mut self, buf: &mut [f32]) {
         Compander::process(self, buf)
     }
+    fn theory_sqnr_db(&self, _input_ms: f64) -> Option<f64> {
+        Some(Compander::theory_sqnr_db(self))
+    }
     fn reset(&mut self) {
         Compander::reset(self)
     }

@@ -236,6 +236,9 @@ impl Stage for Minifloat {
     fn process(&mut self, buf: &mut [f32]) {
         Minifloat::process(self, buf)
     }
+    fn theory_sqnr_db(&self, _input_ms: f64) -> Option<f64> {
+        Some(Minifloat::theory_sqnr_db(self))
+    }
     fn reset(&mut self) {
         Minifloat::reset(self)
     }

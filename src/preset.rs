@@ -14,8 +14,11 @@
 //! parameters, each with a default. Unknown fields are errors, so a typo never passes silently.
 
 use crate::chain::validate_stage;
+use crate::clip::GainParams;
+use crate::companding::{CompandParams, G711Params};
 use crate::error::{Error, Result};
 use crate::io::ExportFormat;
+use crate::minifloat::MinifloatParams;
 use crate::quantize::QuantizeParams;
 use serde::{Deserialize, Serialize};
 
@@ -28,8 +31,16 @@ pub const PRESET_VERSION: u32 = 1;
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(tag = "kind", rename_all = "kebab-case")]
 pub enum StageSpec {
+    /// Gain in dB, then what happens beyond full scale (clip, wrap, fold, saturate).
+    Gain(GainParams),
     /// Uniform quantizer (with dither and noise shaping).
     Quantize(QuantizeParams),
+    /// ITU-T G.711 μ-law or A-law, 8-bit, bit-exact encode and decode.
+    G711(G711Params),
+    /// Continuous μ-law or A-law curve with adjustable μ or A and any bit count.
+    Compand(CompandParams),
+    /// Minifloat with chosen exponent and mantissa bits.
+    Minifloat(MinifloatParams),
 }
 
 /// A stage in a preset, with its bypass flag.

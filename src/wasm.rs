@@ -42,6 +42,12 @@ impl Session {
         serde_json::to_string(&demo::DEMOS).unwrap_or_default()
     }
 
+    /// The built-in presets (the CLI's `stairstep presets`), as a JSON array.
+    #[wasm_bindgen(js_name = builtinPresets)]
+    pub fn builtin_presets() -> String {
+        serde_json::to_string(&crate::preset::builtin()).unwrap_or_default()
+    }
+
     /// Loads a built-in demo; returns its description as JSON.
     #[wasm_bindgen(js_name = loadDemo)]
     pub fn load_demo(&mut self, name: &str) -> Result<String, JsError> {

@@ -8,7 +8,15 @@
 // last word (its error messages name the field and range).
 // ---------------------------------------------------------------------------------------------------------------------
 const E = (options) => ({ type: 'enum', options });
+const LAWS = E(['mulaw', 'alaw']);
 const STAGES = {
+  gain: {
+    label: 'Gain and overflow',
+    fields: [
+      { key: 'gain_db', label: 'Gain', type: 'float', min: -60, max: 60, step: 0.1, unit: 'dB', def: 0 },
+      { key: 'overflow', label: 'Beyond ±1', ...E(['clip', 'wrap', 'fold', 'saturate']), def: 'clip' },
+    ],
+  },
   quantize: {
     label: 'Uniform quantizer',
     fields: [
@@ -22,6 +30,30 @@ const STAGES = {
         def: 'none' },
     ],
   },
+  g711: {
+    label: 'G.711 (8-bit μ-law / A-law)',
+    fields: [{ key: 'law', label: 'Law', ...LAWS, def: 'mulaw' }],
+  },
+  compand: {
+    label: 'Companding curve',
+    fields: [
+      { key: 'law', label: 'Law', ...LAWS, def: 'mulaw' },
+      { key: 'mu', label: 'μ', type: 'float', min: 1, max: 100000, step: 1, unit: '', def: 255,
+        when: (s) => (s.law ?? 'mulaw') === 'mulaw' },
+      { key: 'a', label: 'A', type: 'float', min: 1, max: 1000, step: 0.1, unit: '', def: 87.6,
+        when: (s) => s.law === 'alaw' },
+      { key: 'bits', label: 'Bits', type: 'int', min: 2, max: 24, unit: 'bit', def: 8 },
+    ],
+  },
+  minifloat: {
+    label: 'Minifloat',
+    fields: [
+      { key: 'exponent_bits', label: 'Exponent', type: 'int', min: 1, max: 8, unit: 'bit', def: 4 },
+      { key: 'mantissa_bits', label: 'Mantissa', type: 'int', min: 0, max: 23, unit: 'bit', def: 3 },
+      { key: 'bias', label: 'Bias', type: 'int', min: 0, max: 255, unit: '', def: null, placeholder: 'IEEE' },
+      { key: 'subnormals', label: 'Subnormals', type: 'bool', def: true },
+    ],
+  },
 };
 
 const EXPORTS = {
@@ -32,12 +64,7 @@ const EXPORTS = {
   'wav:float32': { label: 'WAV, 32-bit float', spec: { type: 'wav', encoding: 'float32' } },
 };
 
-const BUILTIN_PRESETS = [
-  { name: '8-bit, plain rounding', seed: 1, stages: [{ kind: 'quantize', bits: 8 }], export: EXPORTS['wav:pcm-u8'].spec },
-  { name: '8-bit, TPDF dither', seed: 1, stages: [{ kind: 'quantize', bits: 8, dither: 'tpdf' }],
-    export: EXPORTS['wav:pcm-u8'].spec },
-  { name: '4-bit grit', seed: 1, stages: [{ kind: 'quantize', bits: 4 }], export: EXPORTS['wav:pcm-s16'].spec },
-];
+let BUILTIN_PRESETS = []; // from the core (Session.builtinPresets), shared with the CLI
 
 // ---------------------------------------------------------------------------------------------------------------------
 // State
@@ -158,11 +185,11 @@ function el(tag, attrs = {}, ...children) {
   return e;
 }
 
-function fieldControl(stage, f, onChange) {
+function fieldControl(stage, f, onChange, id) {
   const value = stage[f.key] ?? f.def;
-  const id = `f-${Math.random().toString(36).slice(2)}`;
   if (f.type === 'enum') {
-    const sel = el('select', { id, onchange: () => { stage[f.key] = sel.value; onChange(); } },
+    // An enum can show or hide other fields (see `when`), so the stage is redrawn, keeping the focus here.
+    const sel = el('select', { id, onchange: () => { stage[f.key] = sel.value; onChange(); renderChain(); $(id)?.focus(); } },
       ...f.options.map((o) => el('option', { value: o, selected: o === value }, o)));
     return el('label', { class: 'field', for: id }, el('span', {}, f.label), sel);
   }
@@ -206,7 +233,8 @@ function renderChain() {
       el('button', { type: 'button', title: 'Remove', 'aria-label': `Remove stage ${i + 1}`,
         onclick: () => { state.preset.stages.splice(i, 1); renderChain(); requestRender(); } }, '✕'));
     const body = el('div', { class: 'stage-body' },
-      ...(schema ? schema.fields.map((f) => fieldControl(stage, f, changed)) : []));
+      ...(schema ? schema.fields.filter((f) => !f.when || f.when(stage))
+        .map((f) => fieldControl(stage, f, changed, `f-${i}-${f.key}`)) : []));
     box.append(el('div', { class: `stage${stage.bypass ? ' bypassed' : ''}`, 'data-kind': stage.kind }, head, body,
       el('div', { class: 'stage-error', role: 'alert' })));
   });
@@ -239,10 +267,9 @@ function setupChainTools() {
     requestRender();
   };
   const sel = $('preset-builtin');
-  BUILTIN_PRESETS.forEach((p, i) => sel.append(el('option', { value: String(i) }, p.name)));
   sel.onchange = () => {
     if (sel.value === '') return;
-    applyPreset({ format: 'stairstep-preset', version: 1, ...structuredClone(BUILTIN_PRESETS[+sel.value]) });
+    applyPreset(structuredClone(BUILTIN_PRESETS[+sel.value]));
     sel.value = '';
   };
   $('preset-save').onclick = () => {
@@ -447,7 +474,8 @@ function drawMeters() {
     m('RMS', `${r.output.rms_dbfs.toFixed(2)} dBFS`),
     m('Clipped', `${r.clipped.toLocaleString('en')}`, r.clipped > 0 ? 'warn' : ''),
     m('SQNR', fmtDb(r.sqnr_db), 'sqnr'),
-    m('Theory', r.theory_sqnr_db === null || r.theory_sqnr_db === undefined ? 'n/a' : fmtDb(r.theory_sqnr_db)),
+    el('div', { class: 'meter', title: r.theory_note ?? 'formula for this chain' }, el('span', {}, 'Theory'),
+      el('b', {}, r.theory_sqnr_db === null || r.theory_sqnr_db === undefined ? 'n/a' : fmtDb(r.theory_sqnr_db))),
     m('Rate', `${r.export_rate.toLocaleString('en')} Hz`),
   );
 }
@@ -691,6 +719,9 @@ async function main() {
   document.addEventListener('drop', (e) => { e.preventDefault(); const f = e.dataTransfer.files[0]; if (f) openFile(f); });
   setStatus('Starting the engine…');
   const ready = await call('init', { wasm: wasmBytes.buffer }, [wasmBytes.buffer]);
+  BUILTIN_PRESETS = ready.presets;
+  BUILTIN_PRESETS.forEach((p, i) =>
+    $('preset-builtin').append(el('option', { value: String(i), title: p.description ?? '' }, p.name)));
   const demo = $('demo');
   for (const d of ready.demos) demo.append(el('option', { value: d }, d));
   demo.onchange = () => loadSource({ demo: demo.value }, demo.value);

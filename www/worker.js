@@ -20,7 +20,7 @@ const handlers = {
   init(msg) {
     initSync({ module: msg.wasm });
     session = new Session();
-    reply('ready', { id: msg.id, demos: JSON.parse(Session.demoNames()) });
+    reply('ready', { id: msg.id, demos: JSON.parse(Session.demoNames()), presets: JSON.parse(Session.builtinPresets()) });
   },
 
   load(msg) {
