@@ -24,6 +24,7 @@ pub mod error;
 pub mod io;
 pub mod preset;
 pub mod quantize;
+pub mod rate;
 pub mod rng;
 
 #[cfg(target_arch = "wasm32")]
