@@ -27,6 +27,7 @@ pub mod io;
 pub mod minifloat;
 pub mod preset;
 pub mod quantize;
+pub mod rate;
 pub mod rng;
 
 #[cfg(target_arch = "wasm32")]

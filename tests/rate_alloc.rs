@@ -1,0 +1,80 @@
+//! The rate stage allocates only at construction: `process`, `flush` and `reset` are checked with a counting global
+//! allocator (this test binary's own; the library itself forbids unsafe code).
+
+use stairstep::rate::{RateExpander, RateParams, RateReducer};
+use std::alloc::{GlobalAlloc, Layout, System};
+use std::cell::Cell;
+
+struct Counting;
+
+thread_local! {
+    static ARMED: Cell<bool> = const { Cell::new(false) };
+    static COUNT: Cell<usize> = const { Cell::new(0) };
+}
+
+fn note() {
+    let _ = ARMED.try_with(|a| {
+        if a.get() {
+            let _ = COUNT.try_with(|c| c.set(c.get() + 1));
+        }
+    });
+}
+
+// SAFETY: forwards every call to the system allocator unchanged; only counts calls made on the armed thread.
+unsafe impl GlobalAlloc for Counting {
+    unsafe fn alloc(&self, layout: Layout) -> *mut u8 {
+        note();
+        unsafe { System.alloc(layout) }
+    }
+    unsafe fn dealloc(&self, ptr: *mut u8, layout: Layout) {
+        unsafe { System.dealloc(ptr, layout) }
+    }
+    unsafe fn alloc_zeroed(&self, layout: Layout) -> *mut u8 {
+        note();
+        unsafe { System.alloc_zeroed(layout) }
+    }
+    unsafe fn realloc(&self, ptr: *mut u8, layout: Layout, new_size: usize) -> *mut u8 {
+        note();
+        unsafe { System.realloc(ptr, layout, new_size) }
+    }
+}
+
+#[global_allocator]
+static GLOBAL: Counting = Counting;
+
+/// Allocations made on this thread while `f` runs.
+fn allocations(f: impl FnOnce()) -> usize {
+    COUNT.with(|c| c.set(0));
+    ARMED.with(|a| a.set(true));
+    f();
+    ARMED.with(|a| a.set(false));
+    COUNT.with(|c| c.get())
+}
+
+#[test]
+fn process_flush_and_reset_never_allocate() {
+    const BLOCK: usize = 4096;
+    // The counter works: a vector allocation is seen.
+    assert!(allocations(|| drop(std::hint::black_box(vec![1u8; 10]))) >= 1);
+    let x: Vec<f32> = (0..50_000).map(|i| ((i as f32) * 0.01).sin() * 0.5).collect();
+    for p in [RateParams::hold(7_300), RateParams::clean(7_300), RateParams::clean(8_000), RateParams::hold(48_000)] {
+        let mut r = RateReducer::new(&p, 48_000, BLOCK).unwrap();
+        let mut e = RateExpander::new(&p, 48_000, BLOCK).unwrap();
+        let mut mid = vec![0.0f32; r.max_output(BLOCK)];
+        let mut out = vec![0.0f32; e.max_output(mid.len())];
+        let n = allocations(|| {
+            for _ in 0..2 {
+                for block in x.chunks(BLOCK) {
+                    let m = r.process(block, &mut mid);
+                    e.process(&mid[..m], &mut out);
+                }
+                let m = r.flush(&mut mid);
+                e.process(&mid[..m], &mut out);
+                e.flush(&mut out);
+                r.reset();
+                e.reset();
+            }
+        });
+        assert_eq!(n, 0, "{p:?}: {n} allocations while processing");
+    }
+}
