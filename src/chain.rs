@@ -1,9 +1,20 @@
 //! The processing chain: an ordered list of stages, each with a bypass flag, applied to every channel of a clip.
 //!
-//! A chain is built from a [`Preset`]: construction validates every stage (errors name `stages[i].param`) and
-//! allocates everything; rendering then only runs `process` on fixed-size blocks.
+//! A chain is built from a [`Preset`] for a channel count and a source rate: construction validates every stage
+//! (errors name `stages[i].param`) and allocates everything. Then it is fed blocks of at most [`BLOCK`] frames
+//! ([`Chain::process_block`], then [`Chain::finish`]), or a whole clip at once ([`Chain::render`]); both give the same
+//! samples.
+//!
+//! # Rates and alignment
+//! Stages before the rate stage (at most one per chain) run at the source rate; the rate stage produces the signal at
+//! the target rate, and the stages after it run there. That signal is the **export**. For audition and measurement
+//! the export is brought back to the source rate by the rate stage's expander: the **audition** signal. Any latency
+//! of the rate stage (clean mode) is removed, so the export starts at time 0 and has exactly
+//! `⌈frames·export_rate/source_rate⌉` frames, and the audition lines up sample for sample with the input and has
+//! exactly its length. The error signal is audition − input; the report's SQNR is measured on it.
 
-use crate::analysis::{sqnr_db, Levels};
+use crate::analysis::levels::{LevelsAcc, SqnrAcc};
+use crate::analysis::Levels;
 use crate::audio::Clip;
 use crate::clip::Gain;
 use crate::companding::{Compander, G711};
@@ -11,9 +22,11 @@ use crate::error::{Error, Result};
 use crate::minifloat::Minifloat;
 use crate::preset::{Preset, StageSpec};
 use crate::quantize::Quantizer;
+use crate::rate::{reduced_len, RateExpander, RateReducer};
 use serde::Serialize;
+use std::collections::VecDeque;
 
-/// Samples per block when rendering.
+/// Most frames per block.
 pub const BLOCK: usize = 4096;
 
 /// A stage that keeps the sample rate: processes a block in place, never allocates.
@@ -49,20 +62,35 @@ impl Stage for Quantizer {
     }
 }
 
-/// Builds the run-time stage for one channel. `stream` distinguishes channels for seeded generators.
-fn build_stage(spec: &StageSpec, seed: u64, stream: u64) -> Result<Box<dyn Stage>> {
-    Ok(match spec {
+/// A stage built for one channel.
+enum Node {
+    /// Keeps the rate.
+    Plain(Box<dyn Stage>),
+    /// Changes the rate: the reducer, and the expander that brings the final signal back for audition.
+    Rate { reducer: RateReducer, expander: RateExpander },
+}
+
+/// Builds a rate-keeping stage. `stream` distinguishes channels and stages for seeded generators.
+fn build_plain(spec: &StageSpec, seed: u64, stream: u64) -> Result<Option<Box<dyn Stage>>> {
+    Ok(Some(match spec {
         StageSpec::Gain(p) => Box::new(Gain::new(p)?),
         StageSpec::Quantize(p) => Box::new(Quantizer::new(p, seed, stream)?),
         StageSpec::G711(p) => Box::new(G711::new(p)?),
         StageSpec::Compand(p) => Box::new(Compander::new(p)?),
         StageSpec::Minifloat(p) => Box::new(Minifloat::new(p)?),
-    })
+        StageSpec::Rate(_) => return Ok(None),
+    }))
 }
 
-/// Validates one stage's parameters.
+/// Validates one stage's parameters (those that need no source rate; the rate stage is checked against the source
+/// when a chain is built).
 pub fn validate_stage(spec: &StageSpec) -> Result<()> {
-    build_stage(spec, 0, 0).map(|_| ())
+    match spec {
+        StageSpec::Rate(p) => {
+            crate::error::check_range_u("rate_hz", p.rate_hz as u64, 1, crate::audio::MAX_SAMPLE_RATE as u64)
+        }
+        other => build_plain(other, 0, 0).map(|_| ()),
+    }
 }
 
 /// What a render reports besides the samples.
@@ -78,6 +106,8 @@ pub struct RenderReport {
     pub export_frames: usize,
     /// Number of channels.
     pub channels: usize,
+    /// Latency of the rate stage that was removed, in source-rate frames (0 without a clean-mode rate stage).
+    pub latency_frames: usize,
     /// NaN and ±Inf input samples (replaced by 0 and ±1.0 before the first stage; they never reach an export).
     pub non_finite_inputs: u64,
     /// Clipped samples per stage (all channels), in chain order; bypassed stages read 0.
@@ -86,9 +116,9 @@ pub struct RenderReport {
     pub clipped: u64,
     /// Levels of the input.
     pub input: Levels,
-    /// Levels of the output.
+    /// Levels of the output (the audition signal).
     pub output: Levels,
-    /// Measured SQNR in dB: input power over the power of (output − input), all channels.
+    /// Measured SQNR in dB: input power over the power of (audition − input), all channels.
     pub sqnr_db: f64,
     /// The SQNR theory predicts for this input, where a simple formula applies: the chain has one active stage that
     /// has a formula, and nothing clipped. Uniform quantizer: input power over Δ²/12 plus the dither's variance, times
@@ -103,8 +133,7 @@ pub struct RenderReport {
 pub struct Render {
     /// The processed sound at the export rate: what an exporter writes.
     pub export: Clip,
-    /// The processed sound at the source rate, aligned sample for sample with the input (for audition and for error
-    /// signals).
+    /// The processed sound at the source rate, aligned sample for sample with the input.
     pub audition: Clip,
     /// Figures about the render.
     pub report: RenderReport,
@@ -129,95 +158,270 @@ pub fn sanitize(x: f32) -> f32 {
     }
 }
 
-/// A chain built for a given channel count and sample rate.
+/// Drops the first `skip` samples of a stream and stops after `limit`.
+#[derive(Debug, Clone)]
+struct Aligner {
+    skip: usize,
+    emitted: usize,
+    limit: usize,
+}
+
+impl Aligner {
+    fn new(skip: usize, limit: usize) -> Self {
+        Aligner { skip, emitted: 0, limit }
+    }
+
+    /// The part of `x` that belongs to the aligned stream.
+    fn take<'a>(&mut self, x: &'a [f32]) -> &'a [f32] {
+        let s = self.skip.min(x.len());
+        self.skip -= s;
+        let x = &x[s..];
+        let n = x.len().min(self.limit - self.emitted);
+        self.emitted += n;
+        &x[..n]
+    }
+
+    fn missing(&self) -> usize {
+        self.limit - self.emitted
+    }
+}
+
+/// One channel's stages and buffers.
+struct Lane {
+    nodes: Vec<Option<Node>>,
+    /// Index of the rate node, if one is active.
+    rate_at: Option<usize>,
+    /// The block being processed (source rate).
+    work: Vec<f32>,
+    /// Scratch for the reducer's and the expander's raw output.
+    reduced: Vec<f32>,
+    expanded: Vec<f32>,
+    /// This call's aligned export samples and audition samples.
+    export_buf: Vec<f32>,
+    audition_buf: Vec<f32>,
+    export_align: Aligner,
+    audition_align: Aligner,
+    /// Input and audition samples waiting for their partner (the hold expander can run ahead of the input by part
+    /// of a span, a filter behind it), paired in order for the SQNR.
+    pending_input: VecDeque<f32>,
+    pending_audition: VecDeque<f32>,
+}
+
+/// Where [`Chain::process_block`] puts its output; the caller clears it between blocks as it likes.
+#[derive(Debug, Clone, Default)]
+pub struct ChainOutput {
+    /// Export-rate samples per channel, appended.
+    pub export: Vec<Vec<f32>>,
+    /// Source-rate (audition) samples per channel, appended.
+    pub audition: Vec<Vec<f32>>,
+}
+
+impl ChainOutput {
+    /// An empty output for `channels` channels.
+    pub fn new(channels: usize) -> Self {
+        ChainOutput { export: vec![Vec::new(); channels], audition: vec![Vec::new(); channels] }
+    }
+
+    /// Empties every channel (keeping the capacity).
+    pub fn clear(&mut self) {
+        self.export.iter_mut().chain(self.audition.iter_mut()).for_each(Vec::clear);
+    }
+}
+
+/// A chain built for a channel count, a source rate and a stream length.
 pub struct Chain {
-    /// Per channel, per stage: the run-time stage, or `None` when bypassed.
-    lanes: Vec<Vec<Option<Box<dyn Stage>>>>,
+    lanes: Vec<Lane>,
     source_rate: u32,
     export_rate: u32,
+    frames: usize,
+    latency: usize,
+    fed: usize,
+    non_finite: u64,
+    input_levels: LevelsAcc,
+    output_levels: LevelsAcc,
+    sqnr: SqnrAcc,
 }
 
 impl Chain {
-    /// Builds the chain of `preset` for `channels` channels at `sample_rate` Hz.
-    pub fn new(preset: &Preset, channels: usize, sample_rate: u32) -> Result<Self> {
-        if channels == 0 {
-            return Err(Error::param("channels", channels, "1 or more"));
+    /// Builds the chain of `preset` for `channels` channels at `sample_rate` Hz and a stream of `frames` frames.
+    pub fn new(preset: &Preset, channels: usize, sample_rate: u32, frames: usize) -> Result<Self> {
+        if channels == 0 || channels > crate::audio::MAX_CHANNELS {
+            return Err(Error::param("channels", channels, format!("1..={}", crate::audio::MAX_CHANNELS)));
         }
+        let active_rates: Vec<usize> = preset
+            .stages
+            .iter()
+            .enumerate()
+            .filter(|(_, s)| !s.bypass && matches!(s.stage, StageSpec::Rate(_)))
+            .map(|(i, _)| i)
+            .collect();
+        if active_rates.len() > 1 {
+            return Err(Error::param(
+                format!("stages[{}].kind", active_rates[1]),
+                "a second active rate stage",
+                "at most one active rate stage per chain",
+            ));
+        }
+        let mut export_rate = sample_rate;
         let mut lanes = Vec::with_capacity(channels);
         for ch in 0..channels {
-            let mut lane = Vec::with_capacity(preset.stages.len());
+            let mut nodes = Vec::with_capacity(preset.stages.len());
+            let mut rate_at = None;
             for (i, slot) in preset.stages.iter().enumerate() {
-                let stage = build_stage(&slot.stage, preset.seed, (i * 64 + ch) as u64)
-                    .map_err(|e| e.at(&format!("stages[{i}]")))?;
-                lane.push((!slot.bypass).then_some(stage));
-            }
-            lanes.push(lane);
-        }
-        Ok(Chain { lanes, source_rate: sample_rate, export_rate: sample_rate })
-    }
-
-    /// Resets every stage.
-    pub fn reset(&mut self) {
-        self.lanes.iter_mut().flatten().flatten().for_each(|s| s.reset());
-    }
-
-    /// Renders a whole clip.
-    pub fn render(&mut self, input: &Clip) -> Result<Render> {
-        if input.channel_count() != self.lanes.len() {
-            return Err(Error::param("channels", input.channel_count(), format!("{} (as built)", self.lanes.len())));
-        }
-        if input.sample_rate != self.source_rate {
-            return Err(Error::param("sample_rate", input.sample_rate, format!("{} Hz (as built)", self.source_rate)));
-        }
-        self.reset();
-        let mut non_finite = 0u64;
-        let mut out_channels = Vec::with_capacity(input.channel_count());
-        for (lane, x) in self.lanes.iter_mut().zip(&input.channels) {
-            let mut y: Vec<f32> = Vec::with_capacity(x.len());
-            for block in x.chunks(BLOCK) {
-                let start = y.len();
-                y.extend(block.iter().map(|&s| {
-                    non_finite += (!s.is_finite()) as u64;
-                    sanitize(s)
-                }));
-                for stage in lane.iter_mut().flatten() {
-                    stage.process(&mut y[start..]);
+                let at = |e: Error| e.at(&format!("stages[{i}]"));
+                if slot.bypass {
+                    validate_stage(&slot.stage).map_err(at)?;
+                    nodes.push(None);
+                    continue;
                 }
+                let node = match &slot.stage {
+                    StageSpec::Rate(p) => {
+                        let reducer = RateReducer::new(p, sample_rate, BLOCK).map_err(at)?;
+                        let expander = RateExpander::new(p, sample_rate, BLOCK).map_err(at)?;
+                        export_rate = reducer.target_rate();
+                        rate_at = Some(i);
+                        Node::Rate { reducer, expander }
+                    }
+                    spec => {
+                        Node::Plain(build_plain(spec, preset.seed, (i * 64 + ch) as u64).map_err(at)?.expect("plain"))
+                    }
+                };
+                nodes.push(Some(node));
             }
-            out_channels.push(y);
+            // Scratch sizes: enough for a block and for a flush (max_output covers both).
+            let (export_delay, audition_delay, max_reduced, max_expanded) =
+                match rate_at.and_then(|i| nodes[i].as_ref()) {
+                    Some(Node::Rate { reducer, expander }) => {
+                        let r = reducer.max_output(BLOCK);
+                        (reducer.delay(), expander.delay(), r, expander.max_output(r))
+                    }
+                    _ => (0, 0, 0, 0),
+                };
+            let export_frames = reduced_len(sample_rate, export_rate, frames);
+            lanes.push(Lane {
+                nodes,
+                rate_at,
+                work: Vec::with_capacity(BLOCK),
+                reduced: vec![0.0; max_reduced],
+                expanded: vec![0.0; max_expanded],
+                export_buf: Vec::with_capacity(max_reduced.max(BLOCK)),
+                audition_buf: Vec::with_capacity(max_expanded.max(BLOCK)),
+                export_align: Aligner::new(export_delay, export_frames),
+                audition_align: Aligner::new(audition_delay, frames),
+                pending_input: VecDeque::with_capacity(BLOCK * 2),
+                pending_audition: VecDeque::with_capacity(BLOCK * 2),
+            });
         }
-        let clipped_per_stage: Vec<u64> = (0..self.lanes.first().map_or(0, |l| l.len()))
-            .map(|i| self.lanes.iter().map(|l| l[i].as_ref().map_or(0, |s| s.clipped())).sum())
+        let latency = match lanes[0].rate_at.and_then(|i| lanes[0].nodes[i].as_ref()) {
+            Some(Node::Rate { expander, .. }) => expander.delay(),
+            _ => 0,
+        };
+        Ok(Chain {
+            lanes,
+            source_rate: sample_rate,
+            export_rate,
+            frames,
+            latency,
+            fed: 0,
+            non_finite: 0,
+            input_levels: LevelsAcc::default(),
+            output_levels: LevelsAcc::default(),
+            sqnr: SqnrAcc::default(),
+        })
+    }
+
+    /// Sample rate of the export.
+    pub fn export_rate(&self) -> u32 {
+        self.export_rate
+    }
+
+    /// Frames the export will have.
+    pub fn export_frames(&self) -> usize {
+        self.lanes[0].export_align.limit
+    }
+
+    /// Feeds one block: `input[ch]` are the next frames of channel `ch` (at most [`BLOCK`], all the same length).
+    /// Appends to `out` whatever export and audition samples are ready.
+    ///
+    /// # Panics
+    /// If the channel count or lengths disagree with the chain, or more frames are fed than it was built for.
+    pub fn process_block<C: AsRef<[f32]>>(&mut self, input: &[C], out: &mut ChainOutput) {
+        assert_eq!(input.len(), self.lanes.len(), "one input slice per channel");
+        let n = input[0].as_ref().len();
+        assert!(n <= BLOCK, "blocks hold at most BLOCK frames");
+        assert!(self.fed + n <= self.frames, "more frames than the chain was built for");
+        self.fed += n;
+        for (ch, (lane, x)) in self.lanes.iter_mut().zip(input).enumerate() {
+            let x = x.as_ref();
+            assert_eq!(x.len(), n, "all channels of a block have the same length");
+            lane.work.clear();
+            for &s in x {
+                self.non_finite += (!s.is_finite()) as u64;
+                lane.work.push(sanitize(s));
+            }
+            self.input_levels.push(&lane.work);
+            lane.pending_input.extend(lane.work.iter().copied());
+            lane.run(false);
+            lane.emit(ch, out, &mut self.output_levels, &mut self.sqnr);
+        }
+    }
+
+    /// Ends the stream: flushes the rate stage's filters and pads (with zeros, should a filter give back fewer
+    /// samples than its latency) so that the export and the audition have their exact lengths. Returns the report.
+    pub fn finish(&mut self, out: &mut ChainOutput) -> RenderReport {
+        for (ch, lane) in self.lanes.iter_mut().enumerate() {
+            lane.work.clear();
+            lane.run(true);
+            let (e, a) = (lane.export_align.missing(), lane.audition_align.missing());
+            lane.export_buf.extend(std::iter::repeat_n(0.0, e));
+            lane.export_align.emitted += e;
+            lane.audition_buf.extend(std::iter::repeat_n(0.0, a));
+            lane.audition_align.emitted += a;
+            lane.emit(ch, out, &mut self.output_levels, &mut self.sqnr);
+        }
+        self.report()
+    }
+
+    fn report(&self) -> RenderReport {
+        let stages = self.lanes[0].nodes.len();
+        let clipped_per_stage: Vec<u64> = (0..stages)
+            .map(|i| {
+                self.lanes
+                    .iter()
+                    .map(|l| match &l.nodes[i] {
+                        Some(Node::Plain(s)) => s.clipped(),
+                        _ => 0,
+                    })
+                    .sum()
+            })
             .collect();
-        let audition = Clip { sample_rate: self.source_rate, channels: out_channels };
-        let export = Clip { sample_rate: self.export_rate, channels: audition.channels.clone() };
-        let input_levels = Levels::measure(&input.channels);
-        let (theory_sqnr_db, theory_note) = self.theory(&input_levels, clipped_per_stage.iter().sum());
-        let report = RenderReport {
+        let clipped = clipped_per_stage.iter().sum();
+        let input = self.input_levels.finish();
+        let (theory_sqnr_db, theory_note) = self.theory(&input, clipped);
+        RenderReport {
             source_rate: self.source_rate,
             export_rate: self.export_rate,
-            frames: input.frames(),
-            export_frames: export.frames(),
-            channels: input.channel_count(),
-            sqnr_db: sqnr_db(&input.channels, &audition.channels),
+            frames: self.frames,
+            export_frames: self.export_frames(),
+            channels: self.lanes.len(),
+            latency_frames: self.latency,
+            non_finite_inputs: self.non_finite,
+            clipped_per_stage,
+            clipped,
+            input,
+            output: self.output_levels.finish(),
+            sqnr_db: self.sqnr.db(),
             theory_sqnr_db,
             theory_note,
-            non_finite_inputs: non_finite,
-            clipped: clipped_per_stage.iter().sum(),
-            clipped_per_stage,
-            input: input_levels,
-            output: Levels::measure(&audition.channels),
-        };
-        Ok(Render { export, audition, report })
+        }
     }
 
     fn theory(&self, input: &Levels, clipped: u64) -> (Option<f64>, Option<String>) {
-        let Some(lane) = self.lanes.first() else { return (None, Some("no channels".into())) };
-        let active: Vec<&dyn Stage> = lane.iter().flatten().map(|s| s.as_ref()).collect();
         let note = |s: &str| (None, Some(s.to_string()));
+        let active: Vec<&Node> = self.lanes[0].nodes.iter().flatten().collect();
         match active.as_slice() {
             [] => note("no active stage: the output equals the input"),
-            [only] => {
+            [Node::Plain(only)] => {
                 // Mean square of the input, from its sine-referenced RMS (rms_dbfs is 10·log10(2·ms)).
                 let ms = 10f64.powf(input.rms_dbfs / 10.0) / 2.0;
                 match only.theory_sqnr_db(ms) {
@@ -226,12 +430,110 @@ impl Chain {
                     Some(t) => (Some(t), None),
                 }
             }
+            [Node::Rate { .. }] => {
+                note("rate reduction alone: the loss depends on the input's spectrum, measured only")
+            }
             _ => note("several active stages: no simple formula, measured only"),
         }
+    }
+
+    /// Renders a whole clip (which must have the channel count, rate and length the chain was built for).
+    pub fn render(mut self, input: &Clip) -> Result<Render> {
+        if input.channel_count() != self.lanes.len()
+            || input.sample_rate != self.source_rate
+            || input.frames() != self.frames
+        {
+            return Err(Error::format(format!(
+                "the chain was built for {} channels at {} Hz, {} frames; the clip has {}, {} Hz, {}",
+                self.lanes.len(),
+                self.source_rate,
+                self.frames,
+                input.channel_count(),
+                input.sample_rate,
+                input.frames()
+            )));
+        }
+        let mut out = ChainOutput::new(self.lanes.len());
+        for c in out.export.iter_mut() {
+            c.reserve_exact(self.export_frames());
+        }
+        for c in out.audition.iter_mut() {
+            c.reserve_exact(self.frames);
+        }
+        let mut start = 0;
+        while start < self.frames {
+            let end = (start + BLOCK).min(self.frames);
+            let block: Vec<&[f32]> = input.channels.iter().map(|c| &c[start..end]).collect();
+            self.process_block(&block, &mut out);
+            start = end;
+        }
+        let report = self.finish(&mut out);
+        Ok(Render {
+            export: Clip { sample_rate: self.export_rate, channels: out.export },
+            audition: Clip { sample_rate: self.source_rate, channels: out.audition },
+            report,
+        })
+    }
+}
+
+impl Lane {
+    /// Runs the block in `work` through the stages (or, `flushing`, empties the rate stage's filters), leaving this
+    /// call's aligned export samples in `export_buf` and audition samples in `audition_buf`.
+    fn run(&mut self, flushing: bool) {
+        self.export_buf.clear();
+        self.audition_buf.clear();
+        let Some(r) = self.rate_at else {
+            for node in self.nodes.iter_mut().flatten() {
+                if let Node::Plain(s) = node {
+                    s.process(&mut self.work);
+                }
+            }
+            self.export_buf.extend_from_slice(self.export_align.take(&self.work));
+            self.audition_buf.extend_from_slice(self.audition_align.take(&self.work));
+            return;
+        };
+        let (before, rest) = self.nodes.split_at_mut(r);
+        let (rate, after) = rest.split_first_mut().expect("the rate node is in range");
+        let Some(Node::Rate { reducer, expander }) = rate else { unreachable!("rate_at points at the rate node") };
+        for node in before.iter_mut().flatten() {
+            if let Node::Plain(s) = node {
+                s.process(&mut self.work);
+            }
+        }
+        let got =
+            if flushing { reducer.flush(&mut self.reduced) } else { reducer.process(&self.work, &mut self.reduced) };
+        // The export: the reduced stream without the reducer's latency, cut at the export length, then the stages
+        // behind the rate stage, at the reduced rate.
+        self.export_buf.extend_from_slice(self.export_align.take(&self.reduced[..got]));
+        for node in after.iter_mut().flatten() {
+            if let Node::Plain(s) = node {
+                s.process(&mut self.export_buf);
+            }
+        }
+        // The audition: the export brought back to the source rate, without the expander's latency.
+        let made = expander.process(&self.export_buf, &mut self.expanded);
+        self.audition_buf.extend_from_slice(self.audition_align.take(&self.expanded[..made]));
+        if flushing {
+            let made = expander.flush(&mut self.expanded);
+            self.audition_buf.extend_from_slice(self.audition_align.take(&self.expanded[..made]));
+        }
+    }
+
+    /// Appends this call's output to `out` and accounts it: output levels, and the SQNR against the input samples
+    /// the audition samples line up with.
+    fn emit(&mut self, ch: usize, out: &mut ChainOutput, levels: &mut LevelsAcc, sqnr: &mut SqnrAcc) {
+        levels.push(&self.audition_buf);
+        self.pending_audition.extend(self.audition_buf.iter().copied());
+        let n = self.pending_input.len().min(self.pending_audition.len());
+        for (x, y) in self.pending_input.drain(..n).zip(self.pending_audition.drain(..n)) {
+            sqnr.push(x, y);
+        }
+        out.export[ch].extend_from_slice(&self.export_buf);
+        out.audition[ch].extend_from_slice(&self.audition_buf);
     }
 }
 
 /// Convenience: builds the chain of `preset` for `input` and renders it.
 pub fn render(preset: &Preset, input: &Clip) -> Result<Render> {
-    Chain::new(preset, input.channel_count(), input.sample_rate)?.render(input)
+    Chain::new(preset, input.channel_count(), input.sample_rate, input.frames())?.render(input)
 }

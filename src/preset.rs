@@ -20,6 +20,7 @@ use crate::error::{Error, Result};
 use crate::io::ExportFormat;
 use crate::minifloat::MinifloatParams;
 use crate::quantize::QuantizeParams;
+use crate::rate::RateParams;
 use serde::{Deserialize, Serialize};
 
 /// Value of the `format` field.
@@ -33,6 +34,8 @@ pub const PRESET_VERSION: u32 = 1;
 pub enum StageSpec {
     /// Gain in dB, then what happens beyond full scale (clip, wrap, fold, saturate).
     Gain(GainParams),
+    /// Sample-rate reduction (zero-order hold or band-limited); at most one active per chain.
+    Rate(RateParams),
     /// Uniform quantizer (with dither and noise shaping).
     Quantize(QuantizeParams),
     /// ITU-T G.711 μ-law or A-law, 8-bit, bit-exact encode and decode.

@@ -25,71 +25,97 @@ pub struct Levels {
 impl Levels {
     /// Measures the given channels.
     pub fn measure<C: AsRef<[f32]>>(channels: &[C]) -> Levels {
-        let (mut peak, mut sum, mut sum2, mut at_fs, mut nf, mut n) = (0f64, 0f64, 0f64, 0u64, 0u64, 0u64);
+        let mut acc = LevelsAcc::default();
         for ch in channels {
-            for &s in ch.as_ref() {
-                if !s.is_finite() {
-                    nf += 1;
-                    continue;
-                }
-                let v = s as f64;
-                peak = peak.max(v.abs());
-                sum += v;
-                sum2 += v * v;
-                at_fs += (v.abs() >= 1.0) as u64;
-                n += 1;
-            }
+            acc.push(ch.as_ref());
         }
-        let ms = if n > 0 { sum2 / n as f64 } else { 0.0 };
-        let rms_dbfs = power_db(2.0 * ms);
-        let peak_dbfs = amp_db(peak);
+        acc.finish()
+    }
+}
+
+/// Accumulates [`Levels`] block by block (for streams).
+#[derive(Debug, Clone, Default)]
+pub struct LevelsAcc {
+    peak: f64,
+    sum: f64,
+    sum2: f64,
+    at_fs: u64,
+    non_finite: u64,
+    n: u64,
+}
+
+impl LevelsAcc {
+    /// Adds samples.
+    pub fn push(&mut self, x: &[f32]) {
+        for &s in x {
+            if !s.is_finite() {
+                self.non_finite += 1;
+                continue;
+            }
+            let v = s as f64;
+            self.peak = self.peak.max(v.abs());
+            self.sum += v;
+            self.sum2 += v * v;
+            self.at_fs += (v.abs() >= 1.0) as u64;
+            self.n += 1;
+        }
+    }
+
+    /// The levels of everything pushed so far.
+    pub fn finish(&self) -> Levels {
+        let n = self.n;
+        let ms = if n > 0 { self.sum2 / n as f64 } else { 0.0 };
+        let peak_dbfs = amp_db(self.peak);
         Levels {
             peak_dbfs,
-            rms_dbfs,
-            dc: if n > 0 { sum / n as f64 } else { 0.0 },
+            rms_dbfs: power_db(2.0 * ms),
+            dc: if n > 0 { self.sum / n as f64 } else { 0.0 },
             crest_db: if ms > 0.0 { peak_dbfs - power_db(ms) } else { 0.0 },
-            at_full_scale: at_fs,
-            non_finite: nf,
+            at_full_scale: self.at_fs,
+            non_finite: self.non_finite,
             samples: n,
         }
     }
 }
 
-/// Mean-square value of `a − b` over the common length; non-finite samples are skipped.
-pub fn error_power(reference: &[f32], output: &[f32]) -> f64 {
-    let (mut s, mut n) = (0f64, 0u64);
-    for (&r, &o) in reference.iter().zip(output) {
-        if r.is_finite() && o.is_finite() {
-            let d = o as f64 - r as f64;
-            s += d * d;
-            n += 1;
+/// Accumulates an SQNR from (reference, output) sample pairs (for streams).
+#[derive(Debug, Clone, Default)]
+pub struct SqnrAcc {
+    signal: f64,
+    error: f64,
+}
+
+impl SqnrAcc {
+    /// Adds one pair; non-finite samples are skipped.
+    #[inline]
+    pub fn push(&mut self, reference: f32, output: f32) {
+        if reference.is_finite() && output.is_finite() {
+            let (r, o) = (reference as f64, output as f64);
+            self.signal += r * r;
+            self.error += (o - r) * (o - r);
         }
     }
-    if n > 0 {
-        s / n as f64
-    } else {
-        0.0
+
+    /// SQNR in dB so far (+240 dB for an exact match).
+    pub fn db(&self) -> f64 {
+        if self.error == 0.0 {
+            -super::FLOOR_DB
+        } else {
+            power_db(self.signal / self.error)
+        }
     }
 }
 
 /// Signal-to-quantization-noise ratio in dB: `10·log10(Σ ref² / Σ (out − ref)²)` over all channels.
 /// An error of exactly zero reads `+240 dB`.
 pub fn sqnr_db<A: AsRef<[f32]>, B: AsRef<[f32]>>(reference: &[A], output: &[B]) -> f64 {
-    let (mut ps, mut pe) = (0f64, 0f64);
+    let mut acc = SqnrAcc::default();
     for (r, o) in reference.iter().zip(output) {
         for (&r, &o) in r.as_ref().iter().zip(o.as_ref()) {
-            if r.is_finite() && o.is_finite() {
-                let (r, o) = (r as f64, o as f64);
-                ps += r * r;
-                pe += (o - r) * (o - r);
-            }
+            acc.push(r, o);
         }
     }
-    if pe == 0.0 {
-        -super::FLOOR_DB
-    } else {
-        power_db(ps / pe)
-    }
+    acc.db()
 }
 
 /// Min/max pairs for drawing: `columns` columns over `x[start..end]`, returned as `[min0, max0, min1, max1, …]`.
