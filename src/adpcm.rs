@@ -279,6 +279,57 @@ pub fn decode_blocks(
     Ok((out, notes))
 }
 
+/// Whether every sample from frame `from` to the end of `data` (whole blocks only) is exactly what
+/// [`encode_blocks`] writes as padding: the encoding of silence continuing from the decoder state at `from`.
+/// Readers use it to tell a true `fact` count (followed by padding) from a wrong one (followed by sound).
+pub fn is_silent_padding(data: &[u8], channels: usize, block_align: usize, from: u64) -> bool {
+    let Ok(spb) = samples_per_block(block_align, channels) else { return false };
+    if data.len() % block_align != 0 {
+        return false;
+    }
+    let header = 4 * channels;
+    for c in 0..channels {
+        let mut pos = 0u64;
+        let mut shadow: Option<ImaState> = None;
+        for block in data.chunks_exact(block_align) {
+            let h = &block[4 * c..4 * c + 4];
+            let mut st = ImaState::new(i16::from_le_bytes([h[0], h[1]]), h[2]);
+            if let Some(sh) = shadow.as_mut() {
+                // The writer restarts the predictor from the (silent) first sample and carries the index over.
+                if st.predictor != 0 || st.index != sh.index {
+                    return false;
+                }
+                sh.predictor = 0;
+            } else if pos >= from {
+                if st.predictor != 0 {
+                    return false;
+                }
+                shadow = Some(st);
+            }
+            pos += 1;
+            for g in 0..(spb - 1) / 8 {
+                let off = header + g * header + 4 * c;
+                for &byte in &block[off..off + 4] {
+                    for nibble in [byte & 15, byte >> 4] {
+                        if shadow.is_none() && pos >= from {
+                            shadow = Some(st);
+                        }
+                        st.decode(nibble);
+                        if let Some(sh) = shadow.as_mut() {
+                            sh.encode(0);
+                            if *sh != st {
+                                return false;
+                            }
+                        }
+                        pos += 1;
+                    }
+                }
+            }
+        }
+    }
+    true
+}
+
 /// Parameters of [`AdpcmRoundTrip`].
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(default, deny_unknown_fields)]
@@ -452,6 +503,22 @@ mod tests {
                         assert_eq!(o[b], input[c][b]);
                     }
                 }
+            }
+        }
+    }
+
+    #[test]
+    fn padding_is_recognised() {
+        let ch = 2;
+        let input: Vec<Vec<i16>> =
+            (0..ch).map(|c| (0..700).map(|i| ((i * 37 + c * 11) % 2000) as i16 - 1000).collect()).collect();
+        for frames in [1usize, 252, 504, 505, 600, 700] {
+            let cut: Vec<Vec<i16>> = input.iter().map(|c| c[..frames].to_vec()).collect();
+            let mut bytes = Vec::new();
+            encode_blocks(&cut, 512, &mut bytes).unwrap();
+            assert!(is_silent_padding(&bytes, ch, 512, frames as u64), "{frames}");
+            if frames > 1 && frames % 505 != 0 {
+                assert!(!is_silent_padding(&bytes, ch, 512, frames as u64 - 1), "{frames}");
             }
         }
     }

@@ -541,6 +541,30 @@ fn decode_frames(data: &[u8], f: &WavFormat, warnings: &mut Vec<String>) -> Vec<
 fn decode_adpcm(data: &[u8], f: &WavFormat, fact: Option<u32>, warnings: &mut Vec<String>) -> Result<Vec<Vec<f32>>> {
     let ch = f.channels as usize;
     let ba = f.block_align as usize;
+    let spb = f.samples_per_block.map_or(1, |s| s as u64);
+    let whole_blocks = data.len() as u64 / ba as u64;
+    let mut fact = fact;
+    let mut fact_distrusted = false;
+    // libsndfile (1.2 and earlier) writes `fact` = samplesPerBlock × blocks / channels: right for mono, half the
+    // frames for stereo. Trusting it would throw away real sound, so that exact value is not trusted unless what
+    // follows it is exactly the encoding of silence (as when this project wrote that many frames).
+    if let Some(n) = fact {
+        if ch > 1
+            && whole_blocks > 0
+            && n as u64 == spb * whole_blocks / ch as u64
+            && data.len() % ba == 0
+            && !adpcm::is_silent_padding(data, ch, ba, n as u64)
+        {
+            warnings.push(format!(
+                "`fact` chunk says {n} frames, the data's {} divided by {ch} channels (a known libsndfile bug): \
+                 all {} frames kept",
+                spb * whole_blocks,
+                spb * whole_blocks
+            ));
+            fact = None;
+            fact_distrusted = true;
+        }
+    }
     let (pcm, notes) = adpcm::decode_blocks(data, ch, ba, fact.map_or(u64::MAX, |n| n as u64))?;
     let frames = pcm.first().map_or(0, |c| c.len());
     if notes.bad_step_index > 0 {
@@ -560,6 +584,7 @@ fn decode_adpcm(data: &[u8], f: &WavFormat, fact: Option<u32>, warnings: &mut Ve
         ));
     }
     match fact {
+        None if fact_distrusted => {}
         None => warnings
             .push(format!("IMA ADPCM file without a `fact` chunk: all {frames} decoded frames kept, padding included")),
         Some(n) if (n as usize) > frames => {
