@@ -15,6 +15,7 @@
 #![forbid(unsafe_code)]
 #![warn(missing_docs)]
 
+pub mod adpcm;
 pub mod analysis;
 pub mod audio;
 pub mod chain;

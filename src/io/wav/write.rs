@@ -1,0 +1,193 @@
+//! The WAV writer.
+
+use super::*;
+use crate::adpcm;
+use crate::audio::Clip;
+use crate::chain::sanitize;
+use crate::error::{Error, Result};
+use crate::io::g711::{linear_to_alaw, linear_to_ulaw};
+use crate::io::{check_clip, ExportMeta, WavEncoding};
+use crate::quantize::pcm_code;
+
+/// Bytes per sample of the byte-aligned encodings (ADPCM: 0).
+fn bytes_per_sample(enc: WavEncoding) -> usize {
+    match enc {
+        WavEncoding::PcmU8 | WavEncoding::Mulaw | WavEncoding::Alaw => 1,
+        WavEncoding::PcmS16 => 2,
+        WavEncoding::PcmS24 => 3,
+        WavEncoding::PcmS32 | WavEncoding::Float32 => 4,
+        WavEncoding::ImaAdpcm => 0,
+    }
+}
+
+/// Body size of the `fmt ` chunk and whether a `fact` chunk is written.
+fn fmt_layout(enc: WavEncoding) -> (u32, bool) {
+    match enc {
+        WavEncoding::PcmU8 | WavEncoding::PcmS16 | WavEncoding::PcmS24 | WavEncoding::PcmS32 => (16, false),
+        WavEncoding::Float32 | WavEncoding::Mulaw | WavEncoding::Alaw => (18, true),
+        WavEncoding::ImaAdpcm => (20, true),
+    }
+}
+
+fn smpl_size(meta: &ExportMeta) -> u64 {
+    if meta.loops.is_empty() {
+        0
+    } else {
+        8 + 36 + 24 * meta.loops.len() as u64
+    }
+}
+
+/// The ADPCM block align to use, checked against the channel count.
+fn adpcm_block_align(block_align: Option<usize>, channels: usize) -> Result<(usize, usize)> {
+    let ba = block_align.unwrap_or_else(|| adpcm::default_block_align(channels));
+    Ok((ba, adpcm::samples_per_block(ba, channels)?))
+}
+
+/// Size of the `data` chunk's body.
+fn data_size(enc: WavEncoding, block_align: Option<usize>, frames: usize, channels: usize) -> Result<u64> {
+    if enc == WavEncoding::ImaAdpcm {
+        let (ba, spb) = adpcm_block_align(block_align, channels)?;
+        Ok(adpcm::block_count(frames as u64, spb) * ba as u64)
+    } else if block_align.is_some() {
+        Err(Error::param("block_align", block_align.unwrap_or(0), "only with encoding \"ima-adpcm\""))
+    } else {
+        Ok((frames as u64).saturating_mul(channels as u64).saturating_mul(bytes_per_sample(enc) as u64))
+    }
+}
+
+/// Exact size in bytes of [`write`]'s output.
+pub fn file_size(enc: WavEncoding, frames: usize, channels: usize) -> u64 {
+    file_size_with(enc, None, frames, channels, &ExportMeta::default()).unwrap_or(0)
+}
+
+/// Exact size in bytes of [`write_with`]'s output; errors as `write_with` for a bad `block_align`.
+pub fn file_size_with(
+    enc: WavEncoding,
+    block_align: Option<usize>,
+    frames: usize,
+    channels: usize,
+    meta: &ExportMeta,
+) -> Result<u64> {
+    let data = data_size(enc, block_align, frames, channels)?;
+    let (fmt, fact) = fmt_layout(enc);
+    Ok(12 + 8 + fmt as u64 + if fact { 12 } else { 0 } + 8 + data + (data & 1) + smpl_size(meta))
+}
+
+/// Encodes a clip as a WAV file with no metadata and the default ADPCM block size.
+pub fn write(clip: &Clip, enc: WavEncoding) -> Result<Vec<u8>> {
+    write_with(clip, enc, None, &ExportMeta::default())
+}
+
+fn chunk_header(out: &mut Vec<u8>, id: &[u8; 4], len: u32) {
+    out.extend_from_slice(id);
+    out.extend_from_slice(&len.to_le_bytes());
+}
+
+fn u16le(out: &mut Vec<u8>, v: u16) {
+    out.extend_from_slice(&v.to_le_bytes());
+}
+
+fn u32le(out: &mut Vec<u8>, v: u32) {
+    out.extend_from_slice(&v.to_le_bytes());
+}
+
+/// Encodes a clip: `block_align` is for IMA ADPCM only (`None`: 256 × channels); `meta.loops` become a `smpl`
+/// chunk. See the [module docs](super) for the layout.
+pub fn write_with(clip: &Clip, enc: WavEncoding, block_align: Option<usize>, meta: &ExportMeta) -> Result<Vec<u8>> {
+    check_clip(clip)?;
+    meta.validate(clip.frames())?;
+    let ch = clip.channel_count();
+    let frames = clip.frames();
+    let size = file_size_with(enc, block_align, frames, ch, meta)?;
+    if size > u32::MAX as u64 {
+        return Err(Error::param("length", frames, "a WAV file of at most 4 GiB"));
+    }
+    let fact_frames = u32::try_from(frames).map_err(|_| Error::param("length", frames, "at most 2^32 − 1 frames"))?;
+    let data_len = data_size(enc, block_align, frames, ch)? as u32;
+    let (fmt_len, fact) = fmt_layout(enc);
+    let mut out = Vec::with_capacity(size as usize);
+    out.extend_from_slice(b"RIFF");
+    u32le(&mut out, (size - 8) as u32);
+    out.extend_from_slice(b"WAVE");
+    chunk_header(&mut out, b"fmt ", fmt_len);
+    let rate = clip.sample_rate;
+    let tag = match enc {
+        WavEncoding::Float32 => WAVE_FORMAT_IEEE_FLOAT,
+        WavEncoding::Mulaw => WAVE_FORMAT_MULAW,
+        WavEncoding::Alaw => WAVE_FORMAT_ALAW,
+        WavEncoding::ImaAdpcm => WAVE_FORMAT_IMA_ADPCM,
+        _ => WAVE_FORMAT_PCM,
+    };
+    u16le(&mut out, tag);
+    u16le(&mut out, ch as u16);
+    u32le(&mut out, rate);
+    if enc == WavEncoding::ImaAdpcm {
+        let (ba, spb) = adpcm_block_align(block_align, ch)?;
+        // Average bytes per second, as libsndfile and the Microsoft codec compute it.
+        u32le(&mut out, (rate as u64 * ba as u64 / spb as u64) as u32);
+        u16le(&mut out, ba as u16);
+        u16le(&mut out, 4);
+        u16le(&mut out, 2);
+        u16le(&mut out, spb as u16);
+    } else {
+        let bps = bytes_per_sample(enc);
+        u32le(&mut out, rate * (ch * bps) as u32);
+        u16le(&mut out, (ch * bps) as u16);
+        u16le(&mut out, (bps * 8) as u16);
+        if fmt_len == 18 {
+            u16le(&mut out, 0);
+        }
+    }
+    if fact {
+        chunk_header(&mut out, b"fact", 4);
+        u32le(&mut out, fact_frames);
+    }
+    chunk_header(&mut out, b"data", data_len);
+    if enc == WavEncoding::ImaAdpcm {
+        let codes: Vec<Vec<i16>> =
+            clip.channels.iter().map(|c| c.iter().map(|&x| pcm_code(sanitize(x), 16) as i16).collect()).collect();
+        adpcm::encode_blocks(&codes, block_align.unwrap_or_else(|| adpcm::default_block_align(ch)), &mut out)?;
+    } else {
+        for i in 0..frames {
+            for c in &clip.channels {
+                let x = sanitize(c[i]);
+                match enc {
+                    // 8-bit WAV samples are unsigned: code + 128.
+                    WavEncoding::PcmU8 => out.push((pcm_code(x, 8) + 128) as u8),
+                    WavEncoding::PcmS16 => out.extend_from_slice(&(pcm_code(x, 16) as i16).to_le_bytes()),
+                    WavEncoding::PcmS24 => out.extend_from_slice(&pcm_code(x, 24).to_le_bytes()[..3]),
+                    WavEncoding::PcmS32 => out.extend_from_slice(&pcm_code(x, 32).to_le_bytes()),
+                    WavEncoding::Float32 => out.extend_from_slice(&x.to_le_bytes()),
+                    WavEncoding::Mulaw => out.push(linear_to_ulaw(pcm_code(x, 16) as i16)),
+                    WavEncoding::Alaw => out.push(linear_to_alaw(pcm_code(x, 16) as i16)),
+                    WavEncoding::ImaAdpcm => {}
+                }
+            }
+        }
+    }
+    if data_len & 1 == 1 {
+        out.push(0);
+    }
+    if !meta.loops.is_empty() {
+        chunk_header(&mut out, b"smpl", 36 + 24 * meta.loops.len() as u32);
+        u32le(&mut out, 0); // manufacturer
+        u32le(&mut out, 0); // product
+        u32le(&mut out, 1_000_000_000 / rate); // sample period in nanoseconds
+        u32le(&mut out, meta.unity_note as u32);
+        u32le(&mut out, 0); // pitch fraction
+        u32le(&mut out, 0); // SMPTE format
+        u32le(&mut out, 0); // SMPTE offset
+        u32le(&mut out, meta.loops.len() as u32);
+        u32le(&mut out, 0); // sampler data bytes
+        for (i, l) in meta.loops.iter().enumerate() {
+            u32le(&mut out, i as u32); // cue point id
+            u32le(&mut out, l.loop_type);
+            u32le(&mut out, l.start);
+            u32le(&mut out, l.end);
+            u32le(&mut out, 0); // fraction
+            u32le(&mut out, l.play_count);
+        }
+    }
+    debug_assert_eq!(out.len() as u64, size);
+    Ok(out)
+}
