@@ -13,6 +13,7 @@
 //! `⌈frames·export_rate/source_rate⌉` frames, and the audition lines up sample for sample with the input and has
 //! exactly its length. The error signal is audition − input; the report's SQNR is measured on it.
 
+use crate::adpcm::AdpcmRoundTrip;
 use crate::analysis::levels::{LevelsAcc, SqnrAcc};
 use crate::analysis::Levels;
 use crate::audio::Clip;
@@ -78,6 +79,7 @@ fn build_plain(spec: &StageSpec, seed: u64, stream: u64) -> Result<Option<Box<dy
         StageSpec::G711(p) => Box::new(G711::new(p)?),
         StageSpec::Compand(p) => Box::new(Compander::new(p)?),
         StageSpec::Minifloat(p) => Box::new(Minifloat::new(p)?),
+        StageSpec::Adpcm(p) => Box::new(AdpcmRoundTrip::new(p)?),
         StageSpec::Rate(_) => return Ok(None),
     }))
 }

@@ -13,6 +13,7 @@
 //! Every stage object has `kind` and an optional `bypass` (default false); its other fields are the stage's
 //! parameters, each with a default. Unknown fields are errors, so a typo never passes silently.
 
+use crate::adpcm::AdpcmParams;
 use crate::chain::validate_stage;
 use crate::clip::GainParams;
 use crate::companding::{CompandParams, G711Params};
@@ -44,6 +45,8 @@ pub enum StageSpec {
     Compand(CompandParams),
     /// Minifloat with chosen exponent and mantissa bits.
     Minifloat(MinifloatParams),
+    /// IMA ADPCM (4-bit) encode then decode: hear what an ADPCM export will contain.
+    Adpcm(AdpcmParams),
 }
 
 /// A stage in a preset, with its bypass flag.
@@ -138,28 +141,67 @@ impl Preset {
     }
 }
 
-/// The built-in presets, shared by the page and the CLI.
+/// The built-in presets, shared by the page and the CLI (`stairstep presets`).
 pub fn builtin() -> Vec<Preset> {
+    use crate::clip::{GainParams, Overflow};
+    use crate::companding::{G711Params, Law};
     use crate::dither::DitherKind;
     use crate::io::WavEncoding;
+    use crate::minifloat::MinifloatParams;
+    use crate::rate::{RateMode, RateParams};
     let q = |p: QuantizeParams| StageSpec::Quantize(p);
-    let make = |name: &str, description: &str, stages: Vec<StageSpec>, encoding: WavEncoding| Preset {
+    let wav = |encoding| ExportFormat::Wav { encoding, block_align: None };
+    let make = |name: &str, description: &str, stages: Vec<StageSpec>, export: ExportFormat| Preset {
         description: description.into(),
-        export: ExportFormat::Wav { encoding },
+        export,
         ..Preset::with_stages(name, stages)
     };
     vec![
         make(
-            "clean-8",
-            "8-bit with TPDF dither: the quietest honest 8-bit",
-            vec![q(QuantizeParams { dither: DitherKind::Tpdf, ..QuantizeParams::bits(8) })],
-            WavEncoding::PcmU8,
+            "handheld",
+            "11,025 Hz zero-order hold and 8-bit TPDF dither into 8-bit unsigned WAV: a small console's sample channel",
+            vec![
+                StageSpec::Rate(RateParams::hold(11_025)),
+                q(QuantizeParams { dither: DitherKind::Tpdf, ..QuantizeParams::bits(8) }),
+            ],
+            wav(WavEncoding::PcmU8),
         ),
         make(
-            "grit-4",
-            "4-bit plain rounding: hard, buzzy, signal-dependent error",
-            vec![q(QuantizeParams::bits(4))],
-            WavEncoding::PcmS16,
+            "phone-line",
+            "8 kHz band-limited, then G.711 μ-law into a μ-law WAV: a telephone call",
+            vec![
+                StageSpec::Rate(RateParams { rate_hz: 8_000, mode: RateMode::Clean }),
+                StageSpec::G711(G711Params { law: Law::Mulaw }),
+            ],
+            wav(WavEncoding::Mulaw),
+        ),
+        make(
+            "sampler-4",
+            "16 kHz hold, 4-bit rounding, no dither: the grit of an early 4-bit sampler",
+            vec![StageSpec::Rate(RateParams::hold(16_000)), q(QuantizeParams::bits(4))],
+            wav(WavEncoding::PcmS16),
+        ),
+        make(
+            "clean-8",
+            "8-bit with TPDF dither and first-order noise shaping at the source rate: the quietest honest 8-bit",
+            vec![q(QuantizeParams {
+                dither: DitherKind::Tpdf,
+                shaping: crate::dither::Shaping::FirstOrder,
+                ..QuantizeParams::bits(8)
+            })],
+            wav(WavEncoding::PcmS16),
+        ),
+        make(
+            "overflow-wrap",
+            "+12 dB into two's-complement wrap-around, then 6 bits: the crackle of an integer overflow",
+            vec![StageSpec::Gain(GainParams { gain_db: 12.0, overflow: Overflow::Wrap }), q(QuantizeParams::bits(6))],
+            wav(WavEncoding::PcmS16),
+        ),
+        make(
+            "tiny-float",
+            "A 1-4-3 minifloat: fine near silence, coarse near full scale",
+            vec![StageSpec::Minifloat(MinifloatParams::default())],
+            wav(WavEncoding::Float32),
         ),
     ]
 }

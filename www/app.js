@@ -17,6 +17,14 @@ const STAGES = {
       { key: 'overflow', label: 'Beyond ±1', ...E(['clip', 'wrap', 'fold', 'saturate']), def: 'clip' },
     ],
   },
+  rate: {
+    label: 'Sample-rate reduction',
+    fields: [
+      { key: 'rate_hz', label: 'Rate', type: 'int', min: 1, max: 768000, step: 1, unit: 'Hz', def: 11025,
+        range: [1000, 48000] },
+      { key: 'mode', label: 'Mode', ...E(['hold', 'clean']), def: 'hold' },
+    ],
+  },
   quantize: {
     label: 'Uniform quantizer',
     fields: [
@@ -201,7 +209,8 @@ function fieldControl(stage, f, onChange, id) {
   const step = f.step ?? (f.type === 'int' ? 1 : 0.1);
   const num = el('input', { id, type: 'number', min: f.min, max: f.max, step, value: value ?? '',
     placeholder: f.placeholder ?? '', 'aria-label': `${f.label} in ${f.unit}` });
-  const range = el('input', { type: 'range', min: f.min, max: f.max, step, value: value ?? f.min, tabindex: -1,
+  const [rmin, rmax] = f.range ?? [f.min, f.max];
+  const range = el('input', { type: 'range', min: rmin, max: rmax, step, value: value ?? rmin, tabindex: -1,
     'aria-hidden': 'true' });
   const commit = (text) => {
     if (text === '' && f.def === null) { delete stage[f.key]; onChange(); return; }
