@@ -92,9 +92,17 @@ impl Session {
     /// Renders the loaded sound through the preset; returns the [`crate::chain::RenderReport`] as JSON.
     pub fn render(&mut self) -> Result<String, JsError> {
         let r = chain::render(&self.preset, &self.source).map_err(js_err)?;
-        let json = serde_json::to_string(&r.report).map_err(|e| JsError::new(&e.to_string()))?;
+        let mut v = serde_json::to_value(&r.report).map_err(|e| JsError::new(&e.to_string()))?;
+        // The asset budget: the exact size of the file the export would write, and its data rate.
+        let fmt = &self.preset.export;
+        let (frames, ch) = (r.export.frames(), r.export.channel_count());
+        let bytes = fmt.file_size(frames, ch);
+        let per_second =
+            fmt.file_size(r.export.sample_rate as usize * 10, ch).saturating_sub(fmt.file_size(0, ch)) / 10;
+        v["export_bytes"] = bytes.into();
+        v["export_bytes_per_second"] = per_second.into();
         self.render = Some(r);
-        Ok(json)
+        Ok(v.to_string())
     }
 
     fn signal(&self, which: &str, ch: usize) -> Result<Vec<f32>, JsError> {
@@ -138,6 +146,12 @@ impl Session {
         columns: usize,
     ) -> Result<Vec<f32>, JsError> {
         Ok(envelope(&self.signal(which, channel)?, start, end, columns))
+    }
+
+    /// The usual file extension of the preset's export format (no dot).
+    #[wasm_bindgen(js_name = exportExtension)]
+    pub fn export_extension(&self) -> String {
+        self.preset.export.extension().to_string()
     }
 
     /// The current render encoded in the preset's export format.

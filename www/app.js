@@ -53,6 +53,13 @@ const STAGES = {
       { key: 'bits', label: 'Bits', type: 'int', min: 2, max: 24, unit: 'bit', def: 8 },
     ],
   },
+  adpcm: {
+    label: 'IMA ADPCM round trip (4-bit)',
+    fields: [
+      { key: 'samples_per_block', label: 'Block', type: 'int', min: 9, max: 65529, step: 8, unit: 'samples', def: 505,
+        range: [9, 4089] },
+    ],
+  },
   minifloat: {
     label: 'Minifloat',
     fields: [
@@ -64,12 +71,34 @@ const STAGES = {
   },
 };
 
-const EXPORTS = {
-  'wav:pcm-u8': { label: 'WAV, 8-bit unsigned PCM', spec: { type: 'wav', encoding: 'pcm-u8' } },
-  'wav:pcm-s16': { label: 'WAV, 16-bit PCM', spec: { type: 'wav', encoding: 'pcm-s16' } },
-  'wav:pcm-s24': { label: 'WAV, 24-bit PCM', spec: { type: 'wav', encoding: 'pcm-s24' } },
-  'wav:pcm-s32': { label: 'WAV, 32-bit PCM', spec: { type: 'wav', encoding: 'pcm-s32' } },
-  'wav:float32': { label: 'WAV, 32-bit float', spec: { type: 'wav', encoding: 'float32' } },
+// Export formats: the `type` picks one of these, its fields are edited like a stage's.
+const EXPORT_TYPES = {
+  wav: {
+    label: 'WAV',
+    fields: [
+      { key: 'encoding', label: 'Encoding',
+        ...E(['pcm-u8', 'pcm-s16', 'pcm-s24', 'pcm-s32', 'float32', 'mulaw', 'alaw', 'ima-adpcm']), def: 'pcm-s16' },
+      { key: 'block_align', label: 'Block align', type: 'int', min: 8, max: 65532, step: 4, unit: 'B', def: null,
+        placeholder: '256 × ch', when: (s) => s.encoding === 'ima-adpcm' },
+    ],
+  },
+  raw: {
+    label: 'Raw samples (no header)',
+    fields: [
+      { key: 'bits', label: 'Bits', ...E([1, 2, 4, 8, 16]), numeric: true, def: 8 },
+      { key: 'signed', label: 'Signed', type: 'bool', def: true },
+      { key: 'endian', label: 'Byte order', ...E(['little', 'big']), def: 'little', when: (s) => +s.bits === 16 },
+      { key: 'bit_order', label: 'Bit order', ...E(['msb-first', 'lsb-first']), def: 'msb-first',
+        when: (s) => +s.bits < 8 },
+    ],
+  },
+  'c-array': {
+    label: 'C array',
+    fields: [
+      { key: 'element', label: 'Element', ...E(['int8', 'uint8', 'int16']), def: 'int8' },
+      { key: 'name', label: 'Name', type: 'text', def: 'sound' },
+    ],
+  },
 };
 
 let BUILTIN_PRESETS = []; // from the core (Session.builtinPresets), shared with the CLI
@@ -197,13 +226,21 @@ function fieldControl(stage, f, onChange, id) {
   const value = stage[f.key] ?? f.def;
   if (f.type === 'enum') {
     // An enum can show or hide other fields (see `when`), so the stage is redrawn, keeping the focus here.
-    const sel = el('select', { id, onchange: () => { stage[f.key] = sel.value; onChange(); renderChain(); $(id)?.focus(); } },
-      ...f.options.map((o) => el('option', { value: o, selected: o === value }, o)));
+    const sel = el('select', { id, onchange: () => {
+      stage[f.key] = f.numeric ? +sel.value : sel.value;
+      onChange(true);
+      $(id)?.focus();
+    } }, ...f.options.map((o) => el('option', { value: o, selected: String(o) === String(value) }, String(o))));
     return el('label', { class: 'field', for: id }, el('span', {}, f.label), sel);
+  }
+  if (f.type === 'text') {
+    const box = el('input', { id, type: 'text', value: value ?? '', spellcheck: 'false',
+      onchange: () => { stage[f.key] = box.value; onChange(); } });
+    return el('label', { class: 'field', for: id }, el('span', {}, f.label), box);
   }
   if (f.type === 'bool') {
     const box = el('input', { id, type: 'checkbox', checked: !!value,
-      onchange: () => { stage[f.key] = box.checked; onChange(); } });
+      onchange: () => { stage[f.key] = box.checked; onChange(true); $(id)?.focus(); } });
     return el('label', { class: 'field check', for: id }, box, el('span', {}, f.label));
   }
   const step = f.step ?? (f.type === 'int' ? 1 : 0.1);
@@ -228,7 +265,9 @@ function renderChain() {
   box.replaceChildren();
   state.preset.stages.forEach((stage, i) => {
     const schema = STAGES[stage.kind];
-    const changed = () => requestRender();
+    // Enum and checkbox changes can show or hide other fields, so they redraw the stage; typing and dragging do not
+    // (redrawing would take the focus away).
+    const changed = (structural) => { if (structural) renderChain(); requestRender(); };
     const head = el('div', { class: 'stage-head' },
       el('span', { class: 'stage-index' }, String(i + 1)),
       el('strong', {}, schema ? schema.label : stage.kind),
@@ -310,27 +349,32 @@ function applyPreset(p) {
 // ---------------------------------------------------------------------------------------------------------------------
 // Export panel
 // ---------------------------------------------------------------------------------------------------------------------
-function exportKey(spec) {
-  return Object.keys(EXPORTS).find((k) => JSON.stringify(EXPORTS[k].spec) === JSON.stringify(spec)) ?? 'wav:pcm-s16';
-}
-
 function renderExport() {
-  const box = $('export');
-  const sel = el('select', { id: 'export-format', 'aria-label': 'Export format',
-    onchange: () => { state.preset.export = structuredClone(EXPORTS[sel.value].spec); drawBudget(); } },
-  ...Object.entries(EXPORTS).map(([k, v]) => el('option', { value: k, selected: k === exportKey(state.preset.export) }, v.label)));
-  box.replaceChildren(el('label', { class: 'field' }, el('span', {}, 'Format'), sel));
+  const spec = state.preset.export;
+  const typeSel = el('select', { id: 'export-type', 'aria-label': 'Export container',
+    onchange: () => {
+      const t = typeSel.value;
+      const fresh = { type: t };
+      for (const f of EXPORT_TYPES[t].fields) if (f.def !== null && f.def !== undefined) fresh[f.key] = f.def;
+      state.preset.export = fresh;
+      renderExport();
+      requestRender();
+    } },
+  ...Object.entries(EXPORT_TYPES).map(([k, v]) => el('option', { value: k, selected: k === spec.type }, v.label)));
+  const schema = EXPORT_TYPES[spec.type] ?? EXPORT_TYPES.wav;
+  const changed = (structural) => { if (structural) renderExport(); requestRender(); };
+  $('export').replaceChildren(el('label', { class: 'field', for: 'export-type' }, el('span', {}, 'Format'), typeSel),
+    ...schema.fields.filter((f) => !f.when || f.when(spec)).map((f) => fieldControl(spec, f, changed, `x-${f.key}`)));
   drawBudget();
 }
 
 function drawBudget() {
   const r = state.report;
   if (!r) { $('budget').textContent = ''; return; }
-  const bytesPerSample = { 'pcm-u8': 1, 'pcm-s16': 2, 'pcm-s24': 3, 'pcm-s32': 4, float32: 4 }[state.preset.export.encoding];
-  const bps = r.export_rate * r.channels * bytesPerSample;
-  const size = 44 + r.export_frames * r.channels * bytesPerSample;
-  $('budget').textContent = `${fmtBytes(bps)}/s · ${fmtBytes(size)} (${size.toLocaleString('en')} bytes)` +
-    ` · SQNR ${fmtDb(r.sqnr_db)}`;
+  $('budget').replaceChildren(
+    el('span', {}, `${fmtBytes(Math.round(r.export_bytes_per_second))}/s`), ' · ',
+    el('b', { id: 'budget-size' }, `${r.export_bytes.toLocaleString('en')} bytes`),
+    ` (${fmtBytes(r.export_bytes)}) at ${r.export_rate.toLocaleString('en')} Hz · SQNR ${fmtDb(r.sqnr_db)}`);
 }
 
 function fmtBytes(n) {
@@ -352,7 +396,7 @@ function download(blob, name) {
 async function doExport() {
   try {
     const msg = await call('export', { preset: JSON.stringify(state.preset) });
-    const ext = state.preset.export.type === 'wav' ? 'wav' : 'bin';
+    const ext = msg.extension;
     download(new Blob([msg.file], { type: 'application/octet-stream' }),
       `${slug(state.sourceName)}--${slug(state.preset.name || 'custom')}.${ext}`);
     setStatus(`Exported ${msg.file.length.toLocaleString('en')} bytes`);

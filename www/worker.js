@@ -66,7 +66,7 @@ const handlers = {
     session.setPreset(msg.preset);
     session.render();
     const file = session.exportFile();
-    reply('exported', { id: msg.id, file }, [file.buffer]);
+    reply('exported', { id: msg.id, file, extension: session.exportExtension() }, [file.buffer]);
   },
 };
 
