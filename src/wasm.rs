@@ -82,6 +82,12 @@ impl Session {
         )
     }
 
+    /// Validates a preset and returns it in canonical form (every default filled in), as JSON.
+    #[wasm_bindgen(js_name = normalizePreset)]
+    pub fn normalize_preset(json: &str) -> Result<String, JsError> {
+        Ok(Preset::from_json(json).map_err(js_err)?.to_json())
+    }
+
     /// Sets the preset from JSON (validated; on error the previous preset stays).
     #[wasm_bindgen(js_name = setPreset)]
     pub fn set_preset(&mut self, json: &str) -> Result<(), JsError> {
@@ -146,6 +152,15 @@ impl Session {
         columns: usize,
     ) -> Result<Vec<f32>, JsError> {
         Ok(envelope(&self.signal(which, channel)?, start, end, columns))
+    }
+
+    /// SQNR against word length (1 to 24 bits, PCM rounding, no dither) of the first `max_seconds` of the loaded
+    /// sound, as a JSON array of [`crate::analysis::SweepPoint`].
+    pub fn sweep(&self, max_seconds: f64) -> Result<String, JsError> {
+        let n = ((max_seconds.max(0.0) * self.source.sample_rate as f64) as usize).min(self.source.frames());
+        let head: Vec<&[f32]> = self.source.channels.iter().map(|c| &c[..n]).collect();
+        let pts = crate::analysis::sqnr_sweep(&head, &crate::quantize::QuantizeParams::default(), 1..=24).map_err(js_err)?;
+        serde_json::to_string(&pts).map_err(|e| JsError::new(&e.to_string()))
     }
 
     /// The usual file extension of the preset's export format (no dot).

@@ -196,9 +196,15 @@ async function loadSource(payload, name, transfer = []) {
     state.info = msg.info;
     state.input = msg.input;
     state.sourceName = name;
+    // The sound menu names what is loaded: a demo, or the file.
+    const menu = $('demo');
+    menu.querySelector('option[data-file]')?.remove();
+    if (payload.demo) menu.value = payload.demo;
+    else { menu.prepend(el('option', { value: '', 'data-file': '' }, `file: ${name}`)); menu.value = ''; }
     state.view = { start: 0, end: msg.info.frames };
     state.loop = null;
     audio.newSource();
+    requestSweep();
     $('source-info').textContent =
       `${msg.info.channels === 1 ? 'mono' : msg.info.channels === 2 ? 'stereo' : msg.info.channels + ' ch'}, ` +
       `${msg.info.sampleRate.toLocaleString('en')} Hz, ${(msg.info.frames / msg.info.sampleRate).toFixed(2)} s`;
@@ -330,21 +336,29 @@ function setupChainTools() {
     if (!f) return;
     try {
       const p = JSON.parse(await f.text());
-      if (p.format !== 'stairstep-preset') throw new Error('not a Stairstep preset (format field)');
-      applyPreset(p);
-      setStatus(`Loaded preset ${f.name}`);
+      if (await applyPreset(p)) setStatus(`Loaded preset ${f.name}`);
     } catch (err) {
       setStatus(`Could not load preset ${f.name}: ${err.message}`, 'error');
     }
   };
 }
 
-function applyPreset(p) {
-  state.preset = p;
+// Takes a preset (from a file, the built-ins or a script) through the core's validation, which also fills in every
+// default, so the editor always shows the whole truth. On error the current preset stays.
+async function applyPreset(p) {
+  try {
+    const msg = await call('normalize', { preset: JSON.stringify(p) });
+    state.preset = msg.preset;
+  } catch (err) {
+    setStatus(`Preset not loaded: ${err.message}`, 'error');
+    return false;
+  }
   renderChain();
   renderExport();
   requestRender();
+  return true;
 }
+window.stairstepApplyPreset = applyPreset; // for tests and scripting
 
 // ---------------------------------------------------------------------------------------------------------------------
 // Export panel
@@ -398,7 +412,7 @@ async function doExport() {
     const msg = await call('export', { preset: JSON.stringify(state.preset) });
     const ext = msg.extension;
     download(new Blob([msg.file], { type: 'application/octet-stream' }),
-      `${slug(state.sourceName)}--${slug(state.preset.name || 'custom')}.${ext}`);
+      `${slug(state.sourceName.replace(/\.[^.]+$/, ''))}--${slug(state.preset.name || 'custom')}.${ext}`);
     setStatus(`Exported ${msg.file.length.toLocaleString('en')} bytes`);
   } catch (err) {
     setStatus(`Export failed: ${err.message}`, 'error');
@@ -448,10 +462,23 @@ function drawWave() {
       g.fillRect(x, y0, Math.max(1, w / n), Math.max(1, y1 - y0));
     }
   };
-  drawEnv(state.env.input, css('--original'));
-  g.globalAlpha = 0.85;
+  // Processed filled, original as its outline on top, so both stay visible where they differ.
   drawEnv(state.env.output, css('--processed'));
-  g.globalAlpha = 1;
+  const outline = (env) => {
+    const n = env.length / 2;
+    g.strokeStyle = css('--original');
+    g.lineWidth = 1;
+    for (const k of [1, 0]) {
+      g.beginPath();
+      for (let i = 0; i < n; i++) {
+        const px = (i / n) * w;
+        const py = h / 2 - env[2 * i + k] * (h / 2 - 2);
+        if (i) g.lineTo(px, py); else g.moveTo(px, py);
+      }
+      g.stroke();
+    }
+  };
+  outline(state.env.input);
   if (audio.playing) {
     const pos = audio.position();
     const x = ((pos - start) / (end - start)) * w;
@@ -533,7 +560,48 @@ function drawMeters() {
   );
 }
 
+const SWEEP_SECONDS = 10;
+function drawSweep() {
+  const c = $('sweep');
+  const { w, h, dpr } = fitCanvas(c);
+  const g = c.getContext('2d');
+  g.fillStyle = css('--plot-bg');
+  g.fillRect(0, 0, w, h);
+  const pts = state.sweep;
+  if (!pts) return;
+  const top = 160;
+  const x = (bits) => ((bits - 0.5) / 24) * w;
+  const y = (db) => h - (Math.max(0, Math.min(top, db)) / top) * (h - 14) - 12;
+  g.font = `${11 * dpr}px system-ui, sans-serif`;
+  g.strokeStyle = css('--grid');
+  g.fillStyle = css('--dim');
+  for (let db = 0; db <= top; db += 40) { g.beginPath(); g.moveTo(0, y(db)); g.lineTo(w, y(db)); g.stroke(); g.fillText(`${db} dB`, 4, y(db) - 2); }
+  for (const p of pts) if (p.bits % 4 === 0) g.fillText(`${p.bits}`, x(p.bits) - 4, h - 1);
+  const line = (key, dash, color) => {
+    g.setLineDash(dash); g.strokeStyle = color; g.lineWidth = dpr; g.beginPath();
+    pts.forEach((p, i) => (i ? g.lineTo(x(p.bits), y(p[key])) : g.moveTo(x(p.bits), y(p[key]))));
+    g.stroke(); g.setLineDash([]);
+  };
+  line('sine_formula_db', [4 * dpr, 4 * dpr], css('--dim'));
+  line('theory_db', [], css('--original'));
+  g.fillStyle = css('--processed');
+  for (const p of pts) { g.beginPath(); g.arc(x(p.bits), y(p.measured_db), 3 * dpr, 0, 7); g.fill(); }
+  const q = state.preset.stages.find((s) => s.kind === 'quantize' && !s.bypass && !s.levels);
+  if (q) {
+    g.strokeStyle = css('--error'); g.beginPath(); g.moveTo(x(q.bits ?? 8), 0); g.lineTo(x(q.bits ?? 8), h); g.stroke();
+  }
+}
+
+function requestSweep() {
+  state.sweep = null;
+  drawSweep();
+  const long = state.info.frames > SWEEP_SECONDS * state.info.sampleRate;
+  $('sweep-note').textContent = long ? `(first ${SWEEP_SECONDS} s)` : '';
+  call('sweep', { maxSeconds: SWEEP_SECONDS }).then((m) => { state.sweep = m.points; drawSweep(); }).catch(() => {});
+}
+
 function drawAll() {
+  drawSweep();
   drawWave();
   drawSpectrum();
   drawMeters();
@@ -567,12 +635,20 @@ function setupViews() {
     const { start, end } = viewRange();
     const r = wave.getBoundingClientRect();
     const centre = start + ((ev.clientX - r.left) / r.width) * (end - start);
+    if (ev.shiftKey || Math.abs(ev.deltaX) > Math.abs(ev.deltaY)) {
+      const d = Math.round(((ev.deltaX || ev.deltaY) / r.width) * (end - start));
+      const s = Math.max(0, Math.min(state.info.frames - (end - start), start + d));
+      state.view = { start: s, end: s + (end - start) };
+      refreshEnvelope();
+      return;
+    }
     const span = Math.min(state.info.frames, Math.max(256, (end - start) * (ev.deltaY > 0 ? 1.25 : 0.8)));
     let s = Math.round(centre - (centre - start) * (span / (end - start)));
     s = Math.max(0, Math.min(state.info.frames - span, s));
     state.view = { start: s, end: Math.round(s + span) };
     refreshEnvelope();
   }, { passive: false });
+  wave.addEventListener('dblclick', () => { state.view = { start: 0, end: state.info.frames }; refreshEnvelope(); });
   $('spectrum').addEventListener('pointermove', spectrumReadout);
   window.addEventListener('resize', () => { refreshEnvelope(); drawSpectrum(); });
 }
@@ -777,7 +853,7 @@ async function main() {
     $('preset-builtin').append(el('option', { value: String(i), title: p.description ?? '' }, p.name)));
   const demo = $('demo');
   for (const d of ready.demos) demo.append(el('option', { value: d }, d));
-  demo.onchange = () => loadSource({ demo: demo.value }, demo.value);
+  demo.onchange = () => { if (demo.value) loadSource({ demo: demo.value }, demo.value); };
   await loadSource({ demo: ready.demos[0] }, ready.demos[0]);
   document.body.dataset.ready = 'true';
 }

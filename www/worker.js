@@ -53,6 +53,14 @@ const handlers = {
     reply('rendered', { id: msg.id, report, spectra, env, output, file, ms }, transfer);
   },
 
+  normalize(msg) {
+    reply('normalized', { id: msg.id, preset: JSON.parse(Session.normalizePreset(msg.preset)) });
+  },
+
+  sweep(msg) {
+    reply('swept', { id: msg.id, points: JSON.parse(session.sweep(msg.maxSeconds)) });
+  },
+
   envelope(msg) {
     const v = msg.view;
     const env = {
