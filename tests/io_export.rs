@@ -251,7 +251,8 @@ fn presets_carry_every_export_form() {
         r#"{"type":"raw","bits":4,"signed":false,"endian":"little","bit_order":"msb-first"}"#,
         r#"{"type":"c-array","element":"uint8","name":"coin"}"#,
     ] {
-        let p = Preset::from_json(&format!(r#"{{"format":"stairstep-preset","version":1,"export":{export}}}"#)).unwrap();
+        let p =
+            Preset::from_json(&format!(r#"{{"format":"stairstep-preset","version":1,"export":{export}}}"#)).unwrap();
         assert_eq!(Preset::from_json(&p.to_json()).unwrap(), p);
     }
     for (export, field) in [

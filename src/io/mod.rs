@@ -292,7 +292,8 @@ impl ExportFormat {
         self.file_size_with(frames, channels, &ExportMeta::default())
     }
 
-    /// Exact size in bytes of the file [`encode_with`](Self::encode_with) writes.
+    /// Exact size in bytes of the file [`encode_with`](Self::encode_with) writes (for loops that
+    /// [`ExportMeta::validate`] accepts; 0 for settings `encode_with` rejects).
     pub fn file_size_with(&self, frames: usize, channels: usize, meta: &ExportMeta) -> u64 {
         if self.validate().is_err() {
             return 0;
