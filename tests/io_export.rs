@@ -240,3 +240,46 @@ fn adpcm_lengths_that_look_like_the_libsndfile_bug_read_back_exactly() {
         assert!(meta.warnings.is_empty(), "{:?}", meta.warnings);
     }
 }
+
+/// Presets carry the new export forms, and a bad one is reported with the field's full path.
+#[test]
+fn presets_carry_every_export_form() {
+    use stairstep::Preset;
+    for export in [
+        r#"{"type":"wav","encoding":"pcm-s16"}"#,
+        r#"{"type":"wav","encoding":"ima-adpcm","block_align":1024}"#,
+        r#"{"type":"raw","bits":4,"signed":false,"endian":"little","bit_order":"msb-first"}"#,
+        r#"{"type":"c-array","element":"uint8","name":"coin"}"#,
+    ] {
+        let p =
+            Preset::from_json(&format!(r#"{{"format":"stairstep-preset","version":1,"export":{export}}}"#)).unwrap();
+        assert_eq!(Preset::from_json(&p.to_json()).unwrap(), p);
+    }
+    for (export, field) in [
+        (r#"{"type":"raw","bits":3}"#, "export.bits"),
+        (r#"{"type":"c-array","name":"for"}"#, "export.name"),
+        (r#"{"type":"wav","encoding":"alaw","block_align":512}"#, "export.block_align"),
+    ] {
+        let e = Preset::from_json(&format!(r#"{{"format":"stairstep-preset","version":1,"export":{export}}}"#));
+        let e = e.unwrap_err().to_string();
+        assert!(e.contains(&format!("`{field}`")), "{e}");
+    }
+}
+
+/// The extremes of rate and channel count write and read back in every WAV encoding.
+#[test]
+fn extreme_rates_and_channel_counts() {
+    for (rate, ch) in [(1, 1), (768_000, 1), (1, 64), (768_000, 64), (11_025, 7)] {
+        let clip = Clip::new(rate, noise(ch, 40, 2).channels).unwrap();
+        let meta = ExportMeta { loops: vec![SampleLoop::forward(0, 39)], unity_note: 60 };
+        for encoding in WavEncoding::ALL {
+            let f = ExportFormat::wav(encoding);
+            let bytes = f.encode_with(&clip, &meta).unwrap();
+            assert_eq!(bytes.len() as u64, f.file_size_with(40, ch, &meta));
+            let (back, m) = read_with_meta(&bytes).unwrap();
+            assert_eq!((back.sample_rate, back.channel_count(), back.frames()), (rate, ch, 40), "{encoding:?}");
+            assert!(m.warnings.is_empty(), "{encoding:?} {rate} {ch}: {:?}", m.warnings);
+            assert_eq!(m.loops, meta.loops);
+        }
+    }
+}

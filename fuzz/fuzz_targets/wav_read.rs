@@ -1,6 +1,15 @@
 //! Reads arbitrary bytes as WAV. The reader must never panic and never allocate beyond what the input's size
 //! suggests (libFuzzer's -malloc_limit_mb catches that). When a file is accepted, it is written back in its own
 //! encoding (16-bit PCM when there is none) with its loops, and the result must read again with the same shape.
+//!
+//! Run from `fuzz/` (needs nightly and `cargo install cargo-fuzz`), seeding with the fixtures:
+//!
+//! ```sh
+//! mkdir -p corpus/wav_read && cp ../tests/fixtures/*.wav corpus/wav_read/
+//! cargo +nightly fuzz run wav_read corpus/wav_read -- -max_total_time=600 -malloc_limit_mb=64 -max_len=16384
+//! ```
+//!
+//! Every crash it finds becomes a case in `tests/wav_malformed.rs` (bytes inline).
 #![no_main]
 
 use libfuzzer_sys::fuzz_target;

@@ -159,7 +159,7 @@ fn default_c_name() -> String {
 
 impl Default for ExportFormat {
     fn default() -> Self {
-        ExportFormat::Wav { encoding: WavEncoding::PcmS16, block_align: None }
+        ExportFormat::wav(WavEncoding::PcmS16)
     }
 }
 
@@ -247,6 +247,11 @@ pub(crate) fn check_clip(clip: &Clip) -> Result<()> {
 }
 
 impl ExportFormat {
+    /// A WAV export with this encoding and the default ADPCM block size.
+    pub fn wav(encoding: WavEncoding) -> Self {
+        ExportFormat::Wav { encoding, block_align: None }
+    }
+
     /// Checks the settings that do not depend on the clip; errors name the field (`bits`, `name`, `block_align`).
     /// Settings that depend on the channel count (an ADPCM `block_align`) are checked again by
     /// [`encode`](Self::encode).
@@ -287,7 +292,8 @@ impl ExportFormat {
         self.file_size_with(frames, channels, &ExportMeta::default())
     }
 
-    /// Exact size in bytes of the file [`encode_with`](Self::encode_with) writes.
+    /// Exact size in bytes of the file [`encode_with`](Self::encode_with) writes (for loops that
+    /// [`ExportMeta::validate`] accepts; 0 for settings `encode_with` rejects).
     pub fn file_size_with(&self, frames: usize, channels: usize, meta: &ExportMeta) -> u64 {
         if self.validate().is_err() {
             return 0;

@@ -25,7 +25,7 @@
 //! chunk (ignored in part or whole); loops that fall outside the sound (dropped); ADPCM block headers with a step
 //! index above 88 (clamped, as libsndfile does) or a non-zero reserved byte. [`read`] drops the warnings.
 //!
-//! # Writing ([`write`], [`write_with`])
+//! # Writing ([`write()`], [`write_with`])
 //! - PCM: `fmt ` of 16 bytes, then `data`: the canonical 44-byte header.
 //! - float32, μ-law, A-law: `fmt ` of 18 bytes (cbSize 0), `fact` (frames), `data`.
 //! - IMA ADPCM: `fmt ` of 20 bytes (cbSize 2, samplesPerBlock), `fact` (true frame count), `data` of whole blocks

@@ -244,7 +244,10 @@ fn scan<'a>(bytes: &'a [u8], warnings: &mut Vec<String>) -> Result<Found<'a>> {
                     extended = true;
                     continue;
                 }
-                warnings.push(format!("{} bytes after the end of the RIFF chunk ignored", len - end));
+                let extra = len - pos.max(end);
+                if extra > 0 {
+                    warnings.push(format!("{extra} bytes after the end of the RIFF chunk ignored"));
+                }
             }
             break;
         }

@@ -55,7 +55,7 @@ fn data_size(enc: WavEncoding, block_align: Option<usize>, frames: usize, channe
     }
 }
 
-/// Exact size in bytes of [`write`]'s output.
+/// Exact size in bytes of [`write()`]'s output.
 pub fn file_size(enc: WavEncoding, frames: usize, channels: usize) -> u64 {
     file_size_with(enc, None, frames, channels, &ExportMeta::default()).unwrap_or(0)
 }
