@@ -159,7 +159,8 @@ impl Session {
     pub fn sweep(&self, max_seconds: f64) -> Result<String, JsError> {
         let n = ((max_seconds.max(0.0) * self.source.sample_rate as f64) as usize).min(self.source.frames());
         let head: Vec<&[f32]> = self.source.channels.iter().map(|c| &c[..n]).collect();
-        let pts = crate::analysis::sqnr_sweep(&head, &crate::quantize::QuantizeParams::default(), 1..=24).map_err(js_err)?;
+        let pts =
+            crate::analysis::sqnr_sweep(&head, &crate::quantize::QuantizeParams::default(), 1..=24).map_err(js_err)?;
         serde_json::to_string(&pts).map_err(|e| JsError::new(&e.to_string()))
     }
 
