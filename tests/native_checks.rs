@@ -22,3 +22,8 @@ fn dithered_render_is_bit_identical_across_platforms() {
 fn bad_parameters_are_errors() {
     checks::bad_parameters_are_errors();
 }
+
+#[test]
+fn every_stage_renders_bit_identically() {
+    checks::every_stage_renders_bit_identically();
+}
