@@ -25,6 +25,7 @@ pub mod dither;
 pub mod error;
 pub mod io;
 pub mod minifloat;
+pub mod prep;
 pub mod preset;
 pub mod quantize;
 pub mod rng;
