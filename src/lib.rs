@@ -26,6 +26,7 @@ pub mod dither;
 pub mod error;
 pub mod io;
 pub mod minifloat;
+pub mod prep;
 pub mod preset;
 pub mod quantize;
 pub mod rate;
