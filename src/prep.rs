@@ -287,6 +287,11 @@ pub struct PrepParams {
 }
 
 impl PrepParams {
+    /// Whether these parameters leave a clip as it is.
+    pub fn is_noop(&self) -> bool {
+        *self == PrepParams::default()
+    }
+
     /// Checks every range that does not depend on the clip. [`prepare`] calls it first.
     pub fn validate(&self) -> Result<()> {
         if let Some(t) = &self.trim {

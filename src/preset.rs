@@ -20,6 +20,7 @@ use crate::companding::{CompandParams, G711Params};
 use crate::error::{Error, Result};
 use crate::io::ExportFormat;
 use crate::minifloat::MinifloatParams;
+use crate::prep::PrepParams;
 use crate::quantize::QuantizeParams;
 use crate::rate::RateParams;
 use serde::{Deserialize, Serialize};
@@ -82,6 +83,9 @@ pub struct Preset {
     /// Seed of every random generator in the chain (dither). Same preset and seed, same bytes.
     #[serde(default = "default_seed")]
     pub seed: u64,
+    /// Asset preparation applied before the chain: channels, trim, fades, normalisation, loop region.
+    #[serde(default, skip_serializing_if = "PrepParams::is_noop")]
+    pub prep: PrepParams,
     /// The chain, in processing order.
     #[serde(default)]
     pub stages: Vec<StageSlot>,
@@ -102,6 +106,7 @@ impl Default for Preset {
             name: String::new(),
             description: String::new(),
             seed: default_seed(),
+            prep: PrepParams::default(),
             stages: Vec::new(),
             export: ExportFormat::default(),
         }
@@ -134,6 +139,7 @@ impl Preset {
         if self.version == 0 || self.version > PRESET_VERSION {
             return Err(Error::param("version", self.version, format!("1..={PRESET_VERSION}")));
         }
+        self.prep.validate().map_err(|e| e.at("prep"))?;
         for (i, slot) in self.stages.iter().enumerate() {
             validate_stage(&slot.stage).map_err(|e| e.at(&format!("stages[{i}]")))?;
         }

@@ -111,18 +111,29 @@ impl Session {
         Ok(v.to_string())
     }
 
-    fn signal(&self, which: &str, ch: usize) -> Result<Vec<f32>, JsError> {
-        let ch = ch.min(self.source.channel_count() - 1);
+    /// Channels of what `which` refers to: the source before a render, the chain's channels after one (asset
+    /// preparation can make a stereo source mono).
+    fn channels_of(&self, which: &str) -> usize {
         match (which, &self.render) {
-            ("input", _) => Ok(self.source.channels[ch].clone()),
-            ("output", Some(r)) => Ok(r.audition.channels[ch].clone()),
-            ("error", Some(r)) => Ok(r.error(&self.source, ch)),
-            ("output" | "error", None) => Err(JsError::new("nothing rendered yet")),
-            _ => Err(JsError::new(&format!("unknown signal {which:?}: input, output or error"))),
+            ("source", _) | (_, None) => self.source.channel_count(),
+            (_, Some(r)) => r.audition.channel_count(),
         }
     }
 
-    /// Samples of one channel of `input`, `output` (at the source rate) or `error`.
+    fn signal(&self, which: &str, ch: usize) -> Result<Vec<f32>, JsError> {
+        let pick = |c: &Clip| c.channels[ch.min(c.channel_count() - 1)].clone();
+        match (which, &self.render) {
+            ("source", _) | ("input", None) => Ok(pick(&self.source)),
+            ("input", Some(r)) => Ok(pick(r.input(&self.source))),
+            ("output", Some(r)) => Ok(pick(&r.audition)),
+            ("error", Some(r)) => Ok(r.error(&self.source, ch.min(r.audition.channel_count() - 1))),
+            ("output" | "error", None) => Err(JsError::new("nothing rendered yet")),
+            _ => Err(JsError::new(&format!("unknown signal {which:?}: source, input, output or error"))),
+        }
+    }
+
+    /// Samples of one channel of `source` (as loaded), `input` (what the chain sees: the prepared sound), `output`
+    /// (at the source rate) or `error` (output − input).
     pub fn samples(&self, which: &str, channel: usize) -> Result<Vec<f32>, JsError> {
         self.signal(which, channel)
     }
@@ -136,7 +147,7 @@ impl Session {
             _ => SpectrumAnalyzer::new(fft_size, window).map_err(js_err)?,
         };
         let chans: Vec<Vec<f32>> =
-            (0..self.source.channel_count()).map(|c| self.signal(which, c)).collect::<Result<_, _>>()?;
+            (0..self.channels_of(which)).map(|c| self.signal(which, c)).collect::<Result<_, _>>()?;
         let out = a.analyze(&chans);
         self.analyzer = Some(a);
         Ok(out)
@@ -174,6 +185,6 @@ impl Session {
     #[wasm_bindgen(js_name = exportFile)]
     pub fn export_file(&self) -> Result<Vec<u8>, JsError> {
         let r = self.render.as_ref().ok_or_else(|| JsError::new("nothing rendered yet"))?;
-        self.preset.export.encode(&r.export).map_err(js_err)
+        r.encode(&self.preset.export).map_err(js_err)
     }
 }

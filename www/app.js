@@ -178,6 +178,7 @@ function requestRender() {
       state.spectra = msg.spectra;
       state.env = msg.env;
       state.output = msg.output;
+      state.reference = msg.reference.length ? msg.reference : null;
       state.errorSignal = null;
       state.renderMs = msg.ms;
       markStageErrors(null);
@@ -769,8 +770,9 @@ const audio = {
 function errorSignal() {
   if (state.errorSignal) return state.errorSignal;
   if (!state.output) return null;
+  const input = state.reference ?? state.input;
   state.errorSignal = state.output.map((o, c) => {
-    const x = state.input[c];
+    const x = input[Math.min(c, input.length - 1)];
     const e = new Float32Array(o.length);
     for (let i = 0; i < o.length; i++) e[i] = o[i] - (Number.isFinite(x[i]) ? x[i] : 0);
     return e;

@@ -45,12 +45,15 @@ const handlers = {
     };
     const output = [];
     for (let c = 0; c < report.channels; c++) output.push(session.samples('output', c));
+    // With asset preparation the chain's input differs from the loaded sound: send it, for the error signal.
+    const reference = [];
+    if (report.prep) for (let c = 0; c < report.channels; c++) reference.push(session.samples('input', c));
     let file = null;
     if (msg.withFile) file = session.exportFile();
     const ms = performance.now() - t0;
-    const transfer = [...Object.values(spectra), ...Object.values(env), ...output].map((a) => a.buffer);
+    const transfer = [...Object.values(spectra), ...Object.values(env), ...output, ...reference].map((a) => a.buffer);
     if (file) transfer.push(file.buffer);
-    reply('rendered', { id: msg.id, report, spectra, env, output, file, ms }, transfer);
+    reply('rendered', { id: msg.id, report, spectra, env, output, reference, file, ms }, transfer);
   },
 
   normalize(msg) {

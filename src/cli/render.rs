@@ -83,6 +83,12 @@ struct Outcome {
     sqnr_db: Option<f64>,
     #[serde(skip_serializing_if = "Option::is_none")]
     bytes: Option<u64>,
+    /// What the reader noticed but could read past (e.g. a malformed `smpl` chunk, ignored).
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    warnings: Vec<String>,
+    /// Loop points written, at the export rate (inclusive end, as in `smpl`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    loop_frames: Option<(u32, u32)>,
     /// Exit code this failure maps to (0 when ok).
     #[serde(skip)]
     code: u8,
@@ -200,15 +206,22 @@ fn render_one(job: &Job, preset: &Preset, export: &ExportFormat, force: bool) ->
         clipped: None,
         sqnr_db: None,
         bytes: None,
+        warnings: Vec::new(),
+        loop_frames: None,
         code: 0,
     };
     let result = (|| -> Result<(), Failure> {
         if !force && job.output.exists() {
             return Err(Failure::new(EXIT_OUTPUT, "output exists (use --force to replace it)"));
         }
-        let clip = io::wav::read(&read_file(&job.input)?).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
-        let r = chain::render(preset, &clip).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
-        let bytes = export.encode(&r.export).map_err(|e| Failure::new(EXIT_OUTPUT, e.to_string()))?;
+        let (clip, meta) =
+            io::wav::read_with_meta(&read_file(&job.input)?).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
+        // A loop in the file's own `smpl` chunk is kept when the preset sets none; damaged metadata is a warning.
+        o.warnings = meta.warnings.clone();
+        let file_loop = meta.loops.first().map(|l| (l.start as u64, l.end as u64 + 1));
+        let r =
+            chain::render_with_loop(preset, &clip, file_loop).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
+        let bytes = r.encode(export).map_err(|e| Failure::new(EXIT_OUTPUT, e.to_string()))?;
         if let Some(parent) = job.output.parent() {
             std::fs::create_dir_all(parent)
                 .map_err(|e| Failure::new(EXIT_OUTPUT, format!("{}: {e}", parent.display())))?;
@@ -219,6 +232,7 @@ fn render_one(job: &Job, preset: &Preset, export: &ExportFormat, force: bool) ->
         o.clipped = Some(r.report.clipped);
         o.sqnr_db = Some(r.report.sqnr_db);
         o.bytes = Some(bytes.len() as u64);
+        o.loop_frames = r.export_meta.loops.first().map(|l| (l.start, l.end));
         Ok(())
     })();
     match result {
