@@ -101,12 +101,13 @@ impl Session {
         let mut v = serde_json::to_value(&r.report).map_err(|e| JsError::new(&e.to_string()))?;
         // The asset budget: the exact size of the file the export would write, and its data rate.
         let fmt = &self.preset.export;
-        let (frames, ch) = (r.export.frames(), r.export.channel_count());
-        let bytes = fmt.file_size(frames, ch);
+        let ch = r.export.channel_count();
         let per_second =
             fmt.file_size(r.export.sample_rate as usize * 10, ch).saturating_sub(fmt.file_size(0, ch)) / 10;
-        v["export_bytes"] = bytes.into();
+        v["export_bytes"] = r.encoded_size(fmt).into();
         v["export_bytes_per_second"] = per_second.into();
+        v["prep"] = serde_json::to_value(&r.prep).unwrap_or_default();
+        v["export_loop"] = serde_json::to_value(r.export_meta.loops.first()).unwrap_or_default();
         self.render = Some(r);
         Ok(v.to_string())
     }
@@ -173,6 +174,18 @@ impl Session {
         let pts =
             crate::analysis::sqnr_sweep(&head, &crate::quantize::QuantizeParams::default(), 1..=24).map_err(js_err)?;
         serde_json::to_string(&pts).map_err(|e| JsError::new(&e.to_string()))
+    }
+
+    /// Gain staging before a `bits`-bit quantizer, for the chain's input (the prepared sound once rendered): peak,
+    /// headroom in dB and in LSB, bits used, and the pre-gain in dB that maximises the SQNR while clipping at most
+    /// `max_clipped` samples. JSON: [`crate::prep::Headroom`] plus `suggested_gain_db`.
+    pub fn headroom(&self, bits: u32, max_clipped: u32) -> Result<String, JsError> {
+        crate::error::check_range_u("bits", bits as u64, 1, 24).map_err(js_err)?;
+        let clip = self.render.as_ref().map_or(&self.source, |r| r.input(&self.source));
+        let mut v =
+            serde_json::to_value(crate::prep::headroom(clip, bits)).map_err(|e| JsError::new(&e.to_string()))?;
+        v["suggested_gain_db"] = crate::prep::suggest_pre_gain(clip, bits, max_clipped as u64).into();
+        Ok(v.to_string())
     }
 
     /// The usual file extension of the preset's export format (no dot).

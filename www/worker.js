@@ -48,12 +48,14 @@ const handlers = {
     // With asset preparation the chain's input differs from the loaded sound: send it, for the error signal.
     const reference = [];
     if (report.prep) for (let c = 0; c < report.channels; c++) reference.push(session.samples('input', c));
+    const q = JSON.parse(msg.preset).stages.find((st) => st.kind === 'quantize' && !st.bypass && !st.levels);
+    const headroom = JSON.parse(session.headroom(q ? (q.bits ?? 8) : 16, 0));
     let file = null;
     if (msg.withFile) file = session.exportFile();
     const ms = performance.now() - t0;
     const transfer = [...Object.values(spectra), ...Object.values(env), ...output, ...reference].map((a) => a.buffer);
     if (file) transfer.push(file.buffer);
-    reply('rendered', { id: msg.id, report, spectra, env, output, reference, file, ms }, transfer);
+    reply('rendered', { id: msg.id, report, headroom, spectra, env, output, reference, file, ms }, transfer);
   },
 
   normalize(msg) {

@@ -9,7 +9,6 @@
 //! rounding.
 
 pub mod c_array;
-pub(crate) mod g711;
 pub mod raw;
 pub mod wav;
 

@@ -3,8 +3,8 @@
 use super::*;
 use crate::adpcm;
 use crate::audio::{Clip, MAX_CHANNELS, MAX_SAMPLE_RATE};
+use crate::companding::{alaw_to_linear, ulaw_to_linear};
 use crate::error::{Error, Result};
-use crate::io::g711::{alaw_to_linear, ulaw_to_linear};
 use crate::io::{ExportMeta, SampleLoop, WavEncoding};
 
 /// What a file's `fmt ` chunk says.

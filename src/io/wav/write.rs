@@ -4,8 +4,8 @@ use super::*;
 use crate::adpcm;
 use crate::audio::Clip;
 use crate::chain::sanitize;
+use crate::companding::{linear_to_alaw, linear_to_ulaw};
 use crate::error::{Error, Result};
-use crate::io::g711::{linear_to_alaw, linear_to_ulaw};
 use crate::io::{check_clip, ExportMeta, WavEncoding};
 use crate::quantize::pcm_code;
 
