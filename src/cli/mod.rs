@@ -104,10 +104,19 @@ fn load_preset(arg: &str) -> Result<Preset, Failure> {
     Preset::from_json(&text).map_err(|e| Failure::new(EXIT_USAGE, format!("{}: {e}", path.display())))
 }
 
-/// Writes `bytes` to `path` atomically: a temporary file in the same folder, then a rename, so an interrupted run
-/// leaves no half-written file under the real name. Refuses to replace an existing file unless `force`.
+/// Writes `bytes` to `path` atomically (see [`write_atomic_with`]).
 pub fn write_atomic(path: &Path, bytes: &[u8], force: bool) -> Result<(), Failure> {
-    use std::io::Write;
+    write_atomic_with(path, force, |f| std::io::Write::write_all(f, bytes))
+}
+
+/// Writes `path` atomically: `fill` writes a temporary file in the same folder, which is synced and then renamed
+/// over `path`, so an interrupted run leaves no half-written file under the real name (at worst a hidden
+/// `.NAME.PID.stairstep-tmp`). Refuses to replace an existing file unless `force`.
+pub fn write_atomic_with(
+    path: &Path,
+    force: bool,
+    fill: impl FnOnce(&mut std::fs::File) -> std::io::Result<()>,
+) -> Result<(), Failure> {
     let fail = |e: std::io::Error| Failure::new(EXIT_OUTPUT, format!("{}: {e}", path.display()));
     if !force && path.exists() {
         return Err(Failure::new(EXIT_OUTPUT, format!("{}: exists (use --force to replace it)", path.display())));
@@ -117,7 +126,7 @@ pub fn write_atomic(path: &Path, bytes: &[u8], force: bool) -> Result<(), Failur
     let tmp = dir.join(format!(".{}.{}.stairstep-tmp", name.to_string_lossy(), std::process::id()));
     let result = (|| {
         let mut f = std::fs::File::create(&tmp)?;
-        f.write_all(bytes)?;
+        fill(&mut f)?;
         f.sync_all()?;
         if !force && path.exists() {
             return Err(std::io::Error::new(std::io::ErrorKind::AlreadyExists, "exists (use --force to replace it)"));

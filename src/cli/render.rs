@@ -4,7 +4,7 @@
 //! single-threaded run (`--jobs 1`). Failures do not stop the batch; they are listed at the end and make the exit
 //! code non-zero.
 
-use super::{load_preset, read_file, write_atomic, Failure, EXIT_INPUT, EXIT_OUTPUT, EXIT_USAGE};
+use super::{load_preset, read_file, write_atomic, write_atomic_with, Failure, EXIT_INPUT, EXIT_OUTPUT, EXIT_USAGE};
 use indicatif::{ProgressBar, ProgressStyle};
 use rayon::prelude::*;
 use serde::Serialize;
@@ -195,7 +195,121 @@ fn slug(s: &str) -> String {
     }
 }
 
-fn render_one(job: &Job, preset: &Preset, export: &ExportFormat, force: bool) -> Outcome {
+/// What a render measured, for the report.
+struct Measured {
+    duration_s: f64,
+    peak_dbfs: f64,
+    clipped: u64,
+    sqnr_db: f64,
+    bytes: u64,
+    loop_frames: Option<(u32, u32)>,
+}
+
+/// Renders in blocks, from file to file, when nothing needs the whole sound at once: a byte-aligned WAV input
+/// without loops, a preset without asset preparation (trim, normalisation, loops need the whole sound), a
+/// byte-aligned WAV export. Memory stays at a few blocks whatever the length. `Ok(None)`: use the in-memory path.
+fn render_streaming(
+    job: &Job,
+    preset: &Preset,
+    export: &ExportFormat,
+    force: bool,
+    progress: Option<&ProgressBar>,
+) -> Result<Option<Measured>, Failure> {
+    use stairstep::chain::{Chain, ChainOutput, BLOCK};
+    use stairstep::io::wav::stream::{StreamReader, StreamWriter};
+    let ExportFormat::Wav { encoding, block_align: None } = export else { return Ok(None) };
+    if !preset.prep.is_noop() || !StreamWriter::<std::fs::File>::supports(*encoding) {
+        return Ok(None);
+    }
+    let input_err = |e: std::io::Error| Failure::new(EXIT_INPUT, format!("{}: {e}", job.input.display()));
+    let file = std::fs::File::open(&job.input).map_err(input_err)?;
+    let reader = StreamReader::open(std::io::BufReader::with_capacity(1 << 20, file))
+        .map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
+    let Some(mut reader) = reader else { return Ok(None) };
+    let f = reader.format().clone();
+    let (ch, rate, frames) = (f.channels as usize, f.sample_rate, reader.frames());
+    let mut chain = Chain::new(preset, ch, rate, frames).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
+    if let Some(p) = progress {
+        p.set_length(frames as u64);
+    }
+    let mut out = ChainOutput::new(ch);
+    let mut report = None;
+    let mut bytes = 0u64;
+    let mut stage_error = None;
+    write_atomic_with(&job.output, force, |file| {
+        let io_err = |e: stairstep::Error| std::io::Error::other(e.to_string());
+        let sink = std::io::BufWriter::with_capacity(1 << 20, &mut *file);
+        let mut w =
+            StreamWriter::new(sink, *encoding, chain.export_rate(), ch, chain.export_frames(), Default::default())
+                .map_err(io_err)?;
+        loop {
+            let block = match reader.read_block(BLOCK) {
+                Ok(b) => b,
+                Err(e) => {
+                    stage_error = Some(Failure::new(EXIT_INPUT, format!("{}: {e}", job.input.display())));
+                    return Err(std::io::Error::other("input failed"));
+                }
+            };
+            if block[0].is_empty() {
+                break;
+            }
+            chain.process_block(&block, &mut out);
+            w.write_block(&out.export).map_err(io_err)?;
+            out.clear();
+            if let Some(p) = progress {
+                p.inc(block[0].len() as u64);
+            }
+        }
+        report = Some(chain.finish(&mut out));
+        w.write_block(&out.export).map_err(io_err)?;
+        w.finish().map_err(io_err)?;
+        bytes = file.metadata()?.len();
+        Ok(())
+    })
+    .map_err(|e| stage_error.take().unwrap_or(e))?;
+    let r = report.expect("finished");
+    Ok(Some(Measured {
+        duration_s: frames as f64 / rate as f64,
+        peak_dbfs: r.output.peak_dbfs,
+        clipped: r.clipped,
+        sqnr_db: r.sqnr_db,
+        bytes,
+        loop_frames: None,
+    }))
+}
+
+/// Renders with the whole sound in memory (everything the streaming path does not cover).
+fn render_in_memory(
+    job: &Job,
+    preset: &Preset,
+    export: &ExportFormat,
+    force: bool,
+) -> Result<(Measured, Vec<String>), Failure> {
+    let (clip, meta) =
+        io::wav::read_with_meta(&read_file(&job.input)?).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
+    // A loop in the file's own `smpl` chunk is kept when the preset sets none; damaged metadata is a warning.
+    let file_loop = meta.loops.first().map(|l| (l.start as u64, l.end as u64 + 1));
+    let r = chain::render_with_loop(preset, &clip, file_loop).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
+    let bytes = r.encode(export).map_err(|e| Failure::new(EXIT_OUTPUT, e.to_string()))?;
+    write_atomic(&job.output, &bytes, force)?;
+    let m = Measured {
+        duration_s: clip.duration_s(),
+        peak_dbfs: r.report.output.peak_dbfs,
+        clipped: r.report.clipped,
+        sqnr_db: r.report.sqnr_db,
+        bytes: bytes.len() as u64,
+        loop_frames: r.export_meta.loops.first().map(|l| (l.start, l.end)),
+    };
+    Ok((m, meta.warnings))
+}
+
+fn render_one(
+    job: &Job,
+    preset: &Preset,
+    export: &ExportFormat,
+    force: bool,
+    progress: Option<&ProgressBar>,
+) -> Outcome {
     let mut o = Outcome {
         input: job.input.clone(),
         output: job.output.clone(),
@@ -214,25 +328,24 @@ fn render_one(job: &Job, preset: &Preset, export: &ExportFormat, force: bool) ->
         if !force && job.output.exists() {
             return Err(Failure::new(EXIT_OUTPUT, "output exists (use --force to replace it)"));
         }
-        let (clip, meta) =
-            io::wav::read_with_meta(&read_file(&job.input)?).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
-        // A loop in the file's own `smpl` chunk is kept when the preset sets none; damaged metadata is a warning.
-        o.warnings = meta.warnings.clone();
-        let file_loop = meta.loops.first().map(|l| (l.start as u64, l.end as u64 + 1));
-        let r =
-            chain::render_with_loop(preset, &clip, file_loop).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
-        let bytes = r.encode(export).map_err(|e| Failure::new(EXIT_OUTPUT, e.to_string()))?;
         if let Some(parent) = job.output.parent() {
             std::fs::create_dir_all(parent)
                 .map_err(|e| Failure::new(EXIT_OUTPUT, format!("{}: {e}", parent.display())))?;
         }
-        write_atomic(&job.output, &bytes, force)?;
-        o.duration_s = Some(clip.duration_s());
-        o.peak_dbfs = Some(r.report.output.peak_dbfs);
-        o.clipped = Some(r.report.clipped);
-        o.sqnr_db = Some(r.report.sqnr_db);
-        o.bytes = Some(bytes.len() as u64);
-        o.loop_frames = r.export_meta.loops.first().map(|l| (l.start, l.end));
+        let m = match render_streaming(job, preset, export, force, progress)? {
+            Some(m) => m,
+            None => {
+                let (m, warnings) = render_in_memory(job, preset, export, force)?;
+                o.warnings = warnings;
+                m
+            }
+        };
+        o.duration_s = Some(m.duration_s);
+        o.peak_dbfs = Some(m.peak_dbfs);
+        o.clipped = Some(m.clipped);
+        o.sqnr_db = Some(m.sqnr_db);
+        o.bytes = Some(m.bytes);
+        o.loop_frames = m.loop_frames;
         Ok(())
     })();
     match result {
@@ -264,9 +377,18 @@ pub fn run(args: Args) -> Result<(), Failure> {
     } else {
         None
     };
+    // One file: a bar by frames (streamed renders advance it; an in-memory render finishes at once).
+    let frame_bar = (interactive && jobs.len() == 1).then(|| {
+        let b = ProgressBar::new(0);
+        b.set_style(
+            ProgressStyle::with_template("{bar:40} {percent:>3}%  {elapsed_precise} / {eta_precise} left")
+                .unwrap_or_else(|_| ProgressStyle::default_bar()),
+        );
+        b
+    });
     let print_lock = Mutex::new(());
     let work = |job: &Job| {
-        let o = render_one(job, &preset, &export, args.force);
+        let o = render_one(job, &preset, &export, args.force, frame_bar.as_ref());
         if let Some(b) = &bar {
             b.set_message(job.input.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default());
             b.inc(1);
@@ -289,7 +411,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
             .install(|| jobs.par_iter().map(work).collect()),
         None => jobs.par_iter().map(work).collect(),
     };
-    if let Some(b) = bar {
+    for b in bar.iter().chain(frame_bar.iter()) {
         b.finish_and_clear();
     }
     if args.json {

@@ -36,6 +36,7 @@
 //! reader accepts them, game engines included.
 
 mod read;
+pub mod stream;
 mod write;
 
 pub use read::{read, read_with_meta, CuePoint, WavFormat, WavMeta};

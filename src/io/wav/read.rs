@@ -370,7 +370,7 @@ fn plural(n: usize, one: &str) -> String {
 }
 
 /// Parses and checks the `fmt ` chunk.
-fn parse_fmt(b: &[u8], warnings: &mut Vec<String>) -> Result<WavFormat> {
+pub(super) fn parse_fmt(b: &[u8], warnings: &mut Vec<String>) -> Result<WavFormat> {
     let err = |m: String| Err(Error::format(m));
     if b.len() < 16 {
         return err(format!("`fmt ` chunk is {} bytes, shorter than the 16 every format needs", b.len()));
@@ -508,7 +508,7 @@ fn parse_fmt(b: &[u8], warnings: &mut Vec<String>) -> Result<WavFormat> {
 }
 
 /// Decodes byte-aligned frames (PCM, float, G.711).
-fn decode_frames(data: &[u8], f: &WavFormat, warnings: &mut Vec<String>) -> Vec<Vec<f32>> {
+pub(super) fn decode_frames(data: &[u8], f: &WavFormat, warnings: &mut Vec<String>) -> Vec<Vec<f32>> {
     let ch = f.channels as usize;
     let frame = f.block_align as usize;
     let frames = data.len() / frame;

@@ -91,13 +91,16 @@ fn u32le(out: &mut Vec<u8>, v: u32) {
     out.extend_from_slice(&v.to_le_bytes());
 }
 
-/// Encodes a clip: `block_align` is for IMA ADPCM only (`None`: 256 × channels); `meta.loops` become a `smpl`
-/// chunk. See the [module docs](super) for the layout.
-pub fn write_with(clip: &Clip, enc: WavEncoding, block_align: Option<usize>, meta: &ExportMeta) -> Result<Vec<u8>> {
-    check_clip(clip)?;
-    meta.validate(clip.frames())?;
-    let ch = clip.channel_count();
-    let frames = clip.frames();
+/// The header of a WAV file of `frames` frames: RIFF, `fmt `, `fact` where the encoding has one, and the `data`
+/// chunk's header. [`write_with`] and the streaming writer share it.
+pub(super) fn header(
+    enc: WavEncoding,
+    block_align: Option<usize>,
+    frames: usize,
+    ch: usize,
+    rate: u32,
+    meta: &ExportMeta,
+) -> Result<Vec<u8>> {
     let size = file_size_with(enc, block_align, frames, ch, meta)?;
     if size > u32::MAX as u64 {
         return Err(Error::param("length", frames, "a WAV file of at most 4 GiB"));
@@ -105,12 +108,11 @@ pub fn write_with(clip: &Clip, enc: WavEncoding, block_align: Option<usize>, met
     let fact_frames = u32::try_from(frames).map_err(|_| Error::param("length", frames, "at most 2^32 − 1 frames"))?;
     let data_len = data_size(enc, block_align, frames, ch)? as u32;
     let (fmt_len, fact) = fmt_layout(enc);
-    let mut out = Vec::with_capacity(size as usize);
+    let mut out = Vec::with_capacity(64);
     out.extend_from_slice(b"RIFF");
     u32le(&mut out, (size - 8) as u32);
     out.extend_from_slice(b"WAVE");
     chunk_header(&mut out, b"fmt ", fmt_len);
-    let rate = clip.sample_rate;
     let tag = match enc {
         WavEncoding::Float32 => WAVE_FORMAT_IEEE_FLOAT,
         WavEncoding::Mulaw => WAVE_FORMAT_MULAW,
@@ -143,28 +145,39 @@ pub fn write_with(clip: &Clip, enc: WavEncoding, block_align: Option<usize>, met
         u32le(&mut out, fact_frames);
     }
     chunk_header(&mut out, b"data", data_len);
-    if enc == WavEncoding::ImaAdpcm {
-        let codes: Vec<Vec<i16>> =
-            clip.channels.iter().map(|c| c.iter().map(|&x| pcm_code(sanitize(x), 16) as i16).collect()).collect();
-        adpcm::encode_blocks(&codes, block_align.unwrap_or_else(|| adpcm::default_block_align(ch)), &mut out)?;
-    } else {
-        for i in 0..frames {
-            for c in &clip.channels {
-                let x = sanitize(c[i]);
-                match enc {
-                    // 8-bit WAV samples are unsigned: code + 128.
-                    WavEncoding::PcmU8 => out.push((pcm_code(x, 8) + 128) as u8),
-                    WavEncoding::PcmS16 => out.extend_from_slice(&(pcm_code(x, 16) as i16).to_le_bytes()),
-                    WavEncoding::PcmS24 => out.extend_from_slice(&pcm_code(x, 24).to_le_bytes()[..3]),
-                    WavEncoding::PcmS32 => out.extend_from_slice(&pcm_code(x, 32).to_le_bytes()),
-                    WavEncoding::Float32 => out.extend_from_slice(&x.to_le_bytes()),
-                    WavEncoding::Mulaw => out.push(linear_to_ulaw(pcm_code(x, 16) as i16)),
-                    WavEncoding::Alaw => out.push(linear_to_alaw(pcm_code(x, 16) as i16)),
-                    WavEncoding::ImaAdpcm => {}
-                }
+    Ok(out)
+}
+
+/// Appends the sample bytes of a block of frames (one slice per channel) in a byte-aligned encoding.
+pub(super) fn body_append<C: AsRef<[f32]>>(enc: WavEncoding, block: &[C], out: &mut Vec<u8>) {
+    let frames = block.first().map_or(0, |c| c.as_ref().len());
+    out.reserve(frames * block.len() * bytes_per_sample(enc));
+    for i in 0..frames {
+        for c in block {
+            let x = sanitize(c.as_ref()[i]);
+            match enc {
+                // 8-bit WAV samples are unsigned: code + 128.
+                WavEncoding::PcmU8 => out.push((pcm_code(x, 8) + 128) as u8),
+                WavEncoding::PcmS16 => out.extend_from_slice(&(pcm_code(x, 16) as i16).to_le_bytes()),
+                WavEncoding::PcmS24 => out.extend_from_slice(&pcm_code(x, 24).to_le_bytes()[..3]),
+                WavEncoding::PcmS32 => out.extend_from_slice(&pcm_code(x, 32).to_le_bytes()),
+                WavEncoding::Float32 => out.extend_from_slice(&x.to_le_bytes()),
+                WavEncoding::Mulaw => out.push(linear_to_ulaw(pcm_code(x, 16) as i16)),
+                WavEncoding::Alaw => out.push(linear_to_alaw(pcm_code(x, 16) as i16)),
+                WavEncoding::ImaAdpcm => {}
             }
         }
     }
+}
+
+/// Size of the `data` chunk's body for a byte-aligned encoding.
+pub(super) fn data_size_of(enc: WavEncoding, frames: usize, ch: usize) -> u64 {
+    (frames * ch * bytes_per_sample(enc)) as u64
+}
+
+/// What follows the samples: the pad byte of an odd-sized `data` chunk, and the `smpl` chunk when there are loops.
+pub(super) fn trailer(data_len: u64, meta: &ExportMeta, rate: u32) -> Vec<u8> {
+    let mut out = Vec::new();
     if data_len & 1 == 1 {
         out.push(0);
     }
@@ -188,6 +201,26 @@ pub fn write_with(clip: &Clip, enc: WavEncoding, block_align: Option<usize>, met
             u32le(&mut out, l.play_count);
         }
     }
-    debug_assert_eq!(out.len() as u64, size);
+    out
+}
+
+/// Encodes a clip: `block_align` is for IMA ADPCM only (`None`: 256 × channels); `meta.loops` become a `smpl`
+/// chunk. See the [module docs](super) for the layout.
+pub fn write_with(clip: &Clip, enc: WavEncoding, block_align: Option<usize>, meta: &ExportMeta) -> Result<Vec<u8>> {
+    check_clip(clip)?;
+    meta.validate(clip.frames())?;
+    let (ch, frames) = (clip.channel_count(), clip.frames());
+    let mut out = header(enc, block_align, frames, ch, clip.sample_rate, meta)?;
+    let data_len = data_size(enc, block_align, frames, ch)?;
+    out.reserve(data_len as usize + 128);
+    if enc == WavEncoding::ImaAdpcm {
+        let codes: Vec<Vec<i16>> =
+            clip.channels.iter().map(|c| c.iter().map(|&x| pcm_code(sanitize(x), 16) as i16).collect()).collect();
+        adpcm::encode_blocks(&codes, block_align.unwrap_or_else(|| adpcm::default_block_align(ch)), &mut out)?;
+    } else {
+        body_append(enc, &clip.channels, &mut out);
+    }
+    out.extend_from_slice(&trailer(data_len, meta, clip.sample_rate));
+    debug_assert_eq!(Ok(out.len() as u64), file_size_with(enc, block_align, frames, ch, meta));
     Ok(out)
 }
