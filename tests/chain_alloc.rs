@@ -1,0 +1,91 @@
+//! The chain allocates nothing per block after warm-up: every stage kind, a rate stage in both modes, checked with a
+//! counting global allocator (this test binary's own; the library itself forbids unsafe code).
+
+use stairstep::chain::{Chain, ChainOutput, BLOCK};
+use stairstep::Preset;
+use std::alloc::{GlobalAlloc, Layout, System};
+use std::cell::Cell;
+
+struct Counting;
+
+thread_local! {
+    static ARMED: Cell<bool> = const { Cell::new(false) };
+    static COUNT: Cell<usize> = const { Cell::new(0) };
+}
+
+fn note() {
+    let _ = ARMED.try_with(|a| {
+        if a.get() {
+            let _ = COUNT.try_with(|c| c.set(c.get() + 1));
+        }
+    });
+}
+
+// SAFETY: forwards every call to the system allocator unchanged; only counts calls made on the armed thread.
+unsafe impl GlobalAlloc for Counting {
+    unsafe fn alloc(&self, layout: Layout) -> *mut u8 {
+        note();
+        unsafe { System.alloc(layout) }
+    }
+    unsafe fn dealloc(&self, ptr: *mut u8, layout: Layout) {
+        unsafe { System.dealloc(ptr, layout) }
+    }
+    unsafe fn alloc_zeroed(&self, layout: Layout) -> *mut u8 {
+        note();
+        unsafe { System.alloc_zeroed(layout) }
+    }
+    unsafe fn realloc(&self, ptr: *mut u8, layout: Layout, new_size: usize) -> *mut u8 {
+        note();
+        unsafe { System.realloc(ptr, layout, new_size) }
+    }
+}
+
+#[global_allocator]
+static GLOBAL: Counting = Counting;
+
+/// Allocations made on this thread while `f` runs.
+fn allocations(f: impl FnOnce()) -> usize {
+    COUNT.with(|c| c.set(0));
+    ARMED.with(|a| a.set(true));
+    f();
+    ARMED.with(|a| a.set(false));
+    COUNT.with(|c| c.get())
+}
+
+#[test]
+fn process_block_does_not_allocate_after_warm_up() {
+    assert!(allocations(|| drop(std::hint::black_box(vec![1u8; 10]))) >= 1);
+    let n = 48_000 * 3;
+    let x: Vec<f32> = (0..n).map(|i| ((i as f32) * 0.013).sin() * 0.8).collect();
+    for mode in ["hold", "clean"] {
+        let json = format!(
+            r#"{{"format":"stairstep-preset","version":1,"stages":[
+            {{"kind":"gain","gain_db":3,"overflow":"fold"}},{{"kind":"compand","bits":9}},
+            {{"kind":"rate","rate_hz":11025,"mode":"{mode}"}},{{"kind":"minifloat"}},{{"kind":"g711"}},{{"kind":"adpcm"}},
+            {{"kind":"quantize","bits":6,"dither":"tpdf","shaping":"ewt9"}}]}}"#
+        );
+        let p = Preset::from_json(&json).unwrap();
+        let mut chain = Chain::new(&p, 2, 48_000, n).unwrap();
+        let mut out = ChainOutput::new(2);
+        // The caller's output buffers are sized once, like a streaming writer's.
+        for c in out.export.iter_mut().chain(out.audition.iter_mut()) {
+            c.reserve(4 * BLOCK);
+        }
+        let mut start = 0;
+        let mut counted = 0;
+        let mut blocks = 0;
+        while start < n {
+            let end = (start + BLOCK).min(n);
+            let block = [&x[start..end], &x[start..end]];
+            let a = allocations(|| chain.process_block(&block, &mut out));
+            // The first blocks fill the clean filter's queues; after that nothing may allocate.
+            if blocks >= 4 {
+                counted += a;
+            }
+            out.clear();
+            start = end;
+            blocks += 1;
+        }
+        assert_eq!(counted, 0, "{mode}: allocations in steady state");
+    }
+}
