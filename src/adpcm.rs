@@ -138,7 +138,7 @@ pub fn samples_per_block(block_align: usize, channels: usize) -> Result<usize> {
         return Err(Error::param("channels", channels, format!("1..={}", crate::audio::MAX_CHANNELS)));
     }
     let header = 4 * channels;
-    if block_align <= header || block_align % header != 0 {
+    if block_align <= header || !block_align.is_multiple_of(header) {
         return Err(Error::param(
             "block_align",
             block_align,
@@ -284,7 +284,7 @@ pub fn decode_blocks(
 /// Readers use it to tell a true `fact` count (followed by padding) from a wrong one (followed by sound).
 pub fn is_silent_padding(data: &[u8], channels: usize, block_align: usize, from: u64) -> bool {
     let Ok(spb) = samples_per_block(block_align, channels) else { return false };
-    if data.len() % block_align != 0 {
+    if !data.len().is_multiple_of(block_align) {
         return false;
     }
     let header = 4 * channels;
@@ -355,7 +355,7 @@ impl AdpcmParams {
     /// Checks the parameters.
     pub fn validate(&self) -> Result<()> {
         let s = self.samples_per_block;
-        if s < 9 || (s - 1) % 8 != 0 || s > 65_529 {
+        if s < 9 || !(s - 1).is_multiple_of(8) || s > 65_529 {
             return Err(Error::param("samples_per_block", s, "8k + 1 for k ≥ 1, 9 to 65529 (e.g. 505 or 1017)"));
         }
         Ok(())

@@ -380,7 +380,7 @@ fn corrupted_fixtures_never_panic() {
             let mut g = f.clone();
             for _ in 0..1 + rng.next_u32() % 4 {
                 let i = rng.next_u32() as usize % g.len();
-                if rng.next_u32() % 2 == 0 {
+                if rng.next_u32().is_multiple_of(2) {
                     g[i] ^= 1 << (rng.next_u32() % 8);
                 } else {
                     g[i] = [0, 0xFF, 0x7F, 0x80][rng.next_u32() as usize % 4];

@@ -186,10 +186,10 @@ pub fn write(clip: &Clip, e: CElement, name: &str, meta: &ExportMeta) -> Result<
     s.push_str(&head(e, name, clip.sample_rate, clip.frames(), clip.channel_count(), meta));
     let mut n = 0usize;
     let mut push = |s: &mut String, v: i32| {
-        s.push_str(if n % per_line == 0 { "    " } else { " " });
+        s.push_str(if n.is_multiple_of(per_line) { "    " } else { " " });
         let _ = write!(s, "{v:>w$},");
         n += 1;
-        if n % per_line == 0 {
+        if n.is_multiple_of(per_line) {
             s.push('\n');
         }
     };

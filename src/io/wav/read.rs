@@ -426,7 +426,7 @@ fn parse_fmt(b: &[u8], warnings: &mut Vec<String>) -> Result<WavFormat> {
                 tag_name(f.sub_format)
             ));
         }
-        if bits % 8 != 0 {
+        if !bits.is_multiple_of(8) {
             return err(format!("extensible `fmt ` chunk declares {bits}-bit containers (must be whole bytes)"));
         }
         let valid = u16_at(b, 18);
@@ -491,8 +491,11 @@ fn parse_fmt(b: &[u8], warnings: &mut Vec<String>) -> Result<WavFormat> {
     };
     let expected = ch * container;
     if ba != expected {
-        let what =
-            if bits % 8 == 0 { format!("{bits} bits") } else { format!("{bits} bits in {container}-byte containers") };
+        let what = if bits.is_multiple_of(8) {
+            format!("{bits} bits")
+        } else {
+            format!("{bits} bits in {container}-byte containers")
+        };
         return err(format!(
             "block align {ba} does not match {} × {what} (expected {expected})",
             plural(ch, "channel")
@@ -552,7 +555,7 @@ fn decode_adpcm(data: &[u8], f: &WavFormat, fact: Option<u32>, warnings: &mut Ve
         if ch > 1
             && whole_blocks > 0
             && n as u64 == spb * whole_blocks / ch as u64
-            && data.len() % ba == 0
+            && data.len().is_multiple_of(ba)
             && !adpcm::is_silent_padding(data, ch, ba, n as u64)
         {
             warnings.push(format!(
