@@ -32,6 +32,10 @@ use std::collections::VecDeque;
 /// Most frames per block.
 pub const BLOCK: usize = 4096;
 
+/// The `frames` of a stream without an end (live input): no length check, no cut at the end. On 32-bit targets
+/// (wasm32) `usize::MAX` frames is only about a day at 48 kHz, so it is not treated as a length.
+pub const UNBOUNDED: usize = usize::MAX;
+
 /// A stage that keeps the sample rate: processes a block in place, never allocates.
 pub trait Stage: Send {
     /// Processes `buf` in place.
@@ -203,6 +207,9 @@ impl Aligner {
         let s = self.skip.min(x.len());
         self.skip -= s;
         let x = &x[s..];
+        if self.limit == UNBOUNDED {
+            return x;
+        }
         let n = x.len().min(self.limit - self.emitted);
         self.emitted += n;
         &x[..n]
@@ -270,7 +277,8 @@ pub struct Chain {
 }
 
 impl Chain {
-    /// Builds the chain of `preset` for `channels` channels at `sample_rate` Hz and a stream of `frames` frames.
+    /// Builds the chain of `preset` for `channels` channels at `sample_rate` Hz and a stream of `frames` frames
+    /// ([`UNBOUNDED`] for a live stream).
     pub fn new(preset: &Preset, channels: usize, sample_rate: u32, frames: usize) -> Result<Self> {
         if channels == 0 || channels > crate::audio::MAX_CHANNELS {
             return Err(Error::param("channels", channels, format!("1..={}", crate::audio::MAX_CHANNELS)));
@@ -335,8 +343,10 @@ impl Chain {
                 audition_buf: Vec::with_capacity(max_expanded.max(BLOCK)),
                 export_align: Aligner::new(export_delay, export_frames),
                 audition_align: Aligner::new(audition_delay, frames),
-                pending_input: VecDeque::with_capacity(BLOCK * 2),
-                pending_audition: VecDeque::with_capacity(BLOCK * 2),
+                // Enough for the rate stage's largest lead or lag (a hold span; clean mode's FFT blocks), so a
+                // stream never grows them.
+                pending_input: VecDeque::with_capacity(2 * (BLOCK + max_expanded) + audition_delay),
+                pending_audition: VecDeque::with_capacity(2 * (BLOCK + max_expanded) + audition_delay),
             });
         }
         let latency = match lanes[0].rate_at.and_then(|i| lanes[0].nodes[i].as_ref()) {
@@ -376,8 +386,8 @@ impl Chain {
         assert_eq!(input.len(), self.lanes.len(), "one input slice per channel");
         let n = input[0].as_ref().len();
         assert!(n <= BLOCK, "blocks hold at most BLOCK frames");
-        assert!(self.fed + n <= self.frames, "more frames than the chain was built for");
-        self.fed += n;
+        assert!(self.frames == UNBOUNDED || self.fed + n <= self.frames, "more frames than the chain was built for");
+        self.fed = self.fed.saturating_add(n);
         for (ch, (lane, x)) in self.lanes.iter_mut().zip(input).enumerate() {
             let x = x.as_ref();
             assert_eq!(x.len(), n, "all channels of a block have the same length");
