@@ -1,5 +1,5 @@
 // Stairstep crusher: an AudioWorklet module with the DSP core (WebAssembly) inside; needs no other file.
-// stairstep-source-hash: 42c4e2982e52950c5b1085d50e8d61d37a8c06135a293b7865db6cbe2100276f
+// stairstep-source-hash: e760ff01f058db6de50221123fec905cbdbbe2b3022742391caad8d521882845
 //   await ctx.audioWorklet.addModule('stairstep-worklet.js');
 //   const node = new AudioWorkletNode(ctx, 'stairstep-crusher', { outputChannelCount: [2],
 //     processorOptions: { preset: 'handheld' } });

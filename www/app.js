@@ -141,6 +141,7 @@ function decodeBase64(b64) {
 }
 
 const wasmBytes = decodeBase64($('wasm-b64').textContent);
+const wasmBytesLive = wasmBytes.slice(); // the worker takes the first copy; the live worklet gets this one
 const workerUrl = URL.createObjectURL(new Blob([$('worker-src').textContent], { type: 'text/javascript' }));
 const worker = new Worker(workerUrl); // classic: module workers from blob: URLs fail on file:// pages
 const waiting = new Map();
@@ -168,6 +169,7 @@ function call(type, payload = {}, transfer = []) {
 let rendering = false;
 let pendingRender = false;
 function requestRender() {
+  live.presetChanged();
   if (rendering) { pendingRender = true; return; }
   rendering = true;
   pendingRender = false;
@@ -892,6 +894,61 @@ const audio = {
   loopChanged() { if (this.playing) this.start(this.position()); },
 };
 
+// Live audition: the chain in an AudioWorklet (www/worklet.js via www/live.js), fed by the sound on a loop or by a
+// microphone / line input, into the same monitor gain and safety limiter. Chain edits reach it within a block.
+const live = {
+  node: null,
+  source: null,
+  stream: null,
+  mode: 'off',
+
+  async start(mode) {
+    this.stop();
+    if (mode === 'off') return;
+    audio.stop();
+    audio.ensure();
+    const ctx = audio.ctx;
+    await ctx.resume();
+    try {
+      this.node = await Stairstep.createCrusherNode(ctx, { wasmBytes: wasmBytesLive,
+        workletSource: $('worklet-src').textContent, preset: state.preset, channels: 2 });
+      if (mode === 'mic') {
+        this.stream = await navigator.mediaDevices.getUserMedia({ audio: { echoCancellation: false,
+          noiseSuppression: false, autoGainControl: false } });
+        this.source = new MediaStreamAudioSourceNode(ctx, { mediaStream: this.stream });
+      } else {
+        const b = audio.buffer('input');
+        this.source = new AudioBufferSourceNode(ctx, { buffer: b, loop: true });
+        if (state.loop) { this.source.loopStart = state.loop.start / b.sampleRate; this.source.loopEnd = state.loop.end / b.sampleRate; }
+        this.source.start();
+      }
+      this.source.connect(this.node).connect(audio.monitor);
+      this.mode = mode;
+      setStatus(`Live: ${mode === 'mic' ? 'input' : 'the sound'} through the chain ` +
+        `(latency ${this.node.stairstep.latencyFrames} frames). Keep the monitor low.`);
+    } catch (err) {
+      this.stop();
+      $('live').value = 'off';
+      setStatus(`Live audition failed: ${err.message}`, 'error');
+    }
+  },
+
+  stop() {
+    try { this.source?.stop?.(); } catch { /* not started */ }
+    this.source?.disconnect();
+    this.node?.disconnect();
+    if (this.node) Stairstep.dispose(this.node).catch(() => {});
+    this.stream?.getTracks().forEach((t) => t.stop());
+    this.node = this.source = this.stream = null;
+    this.mode = 'off';
+  },
+
+  presetChanged() {
+    if (this.node) Stairstep.setPreset(this.node, state.preset).catch((err) => setStatus(`Live: ${err.message}`, 'error'));
+  },
+};
+window.stairstepLive = live;
+
 function errorSignal() {
   if (state.errorSignal) return state.errorSignal;
   if (!state.output) return null;
@@ -921,7 +978,8 @@ function tick() {
 }
 
 function setupAudition() {
-  $('play').onclick = () => audio.toggle();
+  $('play').onclick = () => { if (live.mode !== 'off') { live.stop(); $('live').value = 'off'; } audio.toggle(); };
+  $('live').onchange = () => live.start($('live').value);
   document.addEventListener('keydown', (ev) => {
     const typing = ev.target.closest('input[type=number], input[type=text], select, textarea');
     if (ev.code === 'Space' && !typing) { ev.preventDefault(); audio.toggle(); }

@@ -197,6 +197,26 @@ test('a malformed file shows a clear message and leaves the sound and chain inta
   assert.ok((await report()).sqnr_db > 0);
 });
 
+test('live audition runs the chain in the worklet, on the sound and on an input', async () => {
+  const { page } = s;
+  await usePreset({ format: 'stairstep-preset', version: 1, name: 'live', stages: [
+    { kind: 'rate', rate_hz: 11025, mode: 'hold' }, { kind: 'quantize', bits: 6 }] });
+  for (const [mode, bits] of [['loop', 3], ['mic', 5]]) {
+    await page.selectOption('#live', mode);
+    await page.waitForFunction((m) => window.stairstepLive.mode === m, mode, { timeout: 20_000 });
+    await page.waitForTimeout(600);
+    const st = await page.evaluate(() => Stairstep.getStats(window.stairstepLive.node));
+    assert.ok(st.blocks > 50, `${mode}: ${st.blocks} blocks processed`);
+    // An edit reaches the running node (its preset follows the page's).
+    await setField(1, 'bits', bits);
+    await page.waitForFunction((b) => window.stairstepLive.node?.stairstep?.preset?.stages?.[1]?.bits === b, bits,
+      { timeout: 10_000 });
+  }
+  await page.selectOption('#live', 'off');
+  assert.equal(await page.evaluate(() => window.stairstepLive.mode), 'off');
+  assert.notEqual(await page.evaluate(() => document.getElementById('status').dataset.kind), 'error');
+});
+
 test('dark theme follows the system setting', async () => {
   const ctxPage = await openPage(browser, { colorScheme: 'dark' });
   const bg = await ctxPage.page.evaluate(() => getComputedStyle(document.body).backgroundColor);
