@@ -3,54 +3,12 @@
 
 use stairstep::chain::{Chain, ChainOutput, BLOCK};
 use stairstep::Preset;
-use std::alloc::{GlobalAlloc, Layout, System};
-use std::cell::Cell;
+mod common;
 
-struct Counting;
-
-thread_local! {
-    static ARMED: Cell<bool> = const { Cell::new(false) };
-    static COUNT: Cell<usize> = const { Cell::new(0) };
-}
-
-fn note() {
-    let _ = ARMED.try_with(|a| {
-        if a.get() {
-            let _ = COUNT.try_with(|c| c.set(c.get() + 1));
-        }
-    });
-}
-
-// SAFETY: forwards every call to the system allocator unchanged; only counts calls made on the armed thread.
-unsafe impl GlobalAlloc for Counting {
-    unsafe fn alloc(&self, layout: Layout) -> *mut u8 {
-        note();
-        unsafe { System.alloc(layout) }
-    }
-    unsafe fn dealloc(&self, ptr: *mut u8, layout: Layout) {
-        unsafe { System.dealloc(ptr, layout) }
-    }
-    unsafe fn alloc_zeroed(&self, layout: Layout) -> *mut u8 {
-        note();
-        unsafe { System.alloc_zeroed(layout) }
-    }
-    unsafe fn realloc(&self, ptr: *mut u8, layout: Layout, new_size: usize) -> *mut u8 {
-        note();
-        unsafe { System.realloc(ptr, layout, new_size) }
-    }
-}
+use common::alloc::allocations;
 
 #[global_allocator]
-static GLOBAL: Counting = Counting;
-
-/// Allocations made on this thread while `f` runs.
-fn allocations(f: impl FnOnce()) -> usize {
-    COUNT.with(|c| c.set(0));
-    ARMED.with(|a| a.set(true));
-    f();
-    ARMED.with(|a| a.set(false));
-    COUNT.with(|c| c.get())
-}
+static GLOBAL: common::alloc::Counting = common::alloc::Counting;
 
 #[test]
 fn process_block_does_not_allocate_after_warm_up() {

@@ -1,6 +1,8 @@
 //! Shared helpers for integration tests: the pinned Python reference libraries and the real binary.
 #![allow(dead_code)]
 
+pub mod alloc;
+
 use std::io::Write;
 use std::path::PathBuf;
 use std::process::{Command, Stdio};
