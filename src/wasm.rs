@@ -8,6 +8,9 @@ use crate::chain::{self, Render};
 use crate::{demo, io, Clip, Error, Preset};
 use wasm_bindgen::prelude::*;
 
+/// Most frames a page spectrum averages per channel (spread over the sound), so long files stay quick to redraw.
+const SPECTRUM_FRAMES: usize = 512;
+
 fn js_err(e: Error) -> JsError {
     JsError::new(&e.to_string())
 }
@@ -139,13 +142,14 @@ impl Session {
         self.signal(which, channel)
     }
 
-    /// Welch spectrum in dBFS of all channels of `which`; `fft_size/2 + 1` bins, bin k at k·rate/fft_size Hz.
+    /// Welch spectrum in dBFS of all channels of `which` (at most [`SPECTRUM_FRAMES`] frames per channel, spread over
+    /// the sound); `fft_size/2 + 1` bins, bin k at k·rate/fft_size Hz.
     pub fn spectrum(&mut self, which: &str, fft_size: usize, window: &str) -> Result<Vec<f32>, JsError> {
         let window: Window =
             serde_json::from_value(window.into()).map_err(|_| JsError::new(&format!("unknown window {window:?}")))?;
         let mut a = match self.analyzer.take() {
             Some(a) if a.size() == fft_size && a.window() == window => a,
-            _ => SpectrumAnalyzer::new(fft_size, window).map_err(js_err)?,
+            _ => SpectrumAnalyzer::new(fft_size, window).map_err(js_err)?.with_max_frames(SPECTRUM_FRAMES),
         };
         let chans: Vec<Vec<f32>> =
             (0..self.channels_of(which)).map(|c| self.signal(which, c)).collect::<Result<_, _>>()?;
