@@ -19,5 +19,9 @@ page: wasm
 cli:
 	cargo build --release
 
+# Benchmarks: one table of side-by-side ratios (see scripts/bench.sh); QUICK=1 for a fast smoke run.
+bench:
+	bash scripts/bench.sh $(if $(QUICK),--quick)
+
 clean:
 	rm -rf build target/wasm-build

@@ -175,7 +175,7 @@ impl Quantizer {
         let x = if x.is_nan() { 0.0 } else { x as f64 };
         let v = x * self.inv_step - self.offset - self.shaper.feedback();
         let t = v + self.dither.sample();
-        let mut k = if self.truncate { t.floor() } else { t.round() };
+        let mut k = round_clamped(t, self.kmin - 1.0, self.kmax + 1.0, self.truncate);
         if k > self.kmax {
             k = self.kmax;
             self.clipped += 1;
@@ -194,15 +194,19 @@ impl Quantizer {
         if !self.shaper.is_active() && self.dither.kind() == DitherKind::None {
             // Fast path: a pure function of each sample.
             let (inv, off, step, kmin, kmax) = (self.inv_step, self.offset, self.step, self.kmin, self.kmax);
-            let mut clipped = 0u64;
-            for s in buf.iter_mut() {
-                let x = if s.is_nan() { 0.0 } else { *s as f64 };
-                let t = x * inv - off;
-                let k = if self.truncate { t.floor() } else { t.round() };
-                clipped += (k > kmax || k < kmin) as u64;
-                *s = ((k.clamp(kmin, kmax) + off) * step) as f32;
-            }
-            self.clipped += clipped;
+            // One loop per rounding rule, so that each is a straight-line loop the compiler vectorizes.
+            let quantize = |buf: &mut [f32], truncate: bool| {
+                let mut clipped = 0u64;
+                for s in buf.iter_mut() {
+                    let x = if s.is_nan() { 0.0 } else { *s as f64 };
+                    let t = x * inv - off;
+                    let k = round_clamped(t, kmin - 1.0, kmax + 1.0, truncate);
+                    clipped += (k > kmax || k < kmin) as u64;
+                    *s = ((k.clamp(kmin, kmax) + off) * step) as f32;
+                }
+                clipped
+            };
+            self.clipped += if self.truncate { quantize(buf, true) } else { quantize(buf, false) };
         } else {
             for s in buf.iter_mut() {
                 *s = self.quantize_sample(*s);
@@ -224,6 +228,29 @@ impl Quantizer {
         let var_lsb2 = 1.0 / 12.0 + d.variance_lsb2(self.dither.peak_lsb());
         let bias = if self.truncate && d == DitherKind::None { 0.25 } else { 0.0 };
         (var_lsb2 * self.params.shaping.power_gain() + bias) * self.step * self.step
+    }
+}
+
+/// `t.round()` (ties away from zero) or, `truncate`, `t.floor()`, of `t` first clamped to `[lo, hi]`.
+///
+/// The callers clamp the result to `[lo + 1, hi − 1]` and count what lies outside, so clamping `t` first changes
+/// neither the level nor the clip count, and it bounds `t` (the quantizer's bounds are within ±2^24). Written without
+/// `f64::round`/`floor` because on x86-64 without SSE4.1 (the default target) and in wasm those are calls into
+/// libm, one per sample, which also keep the quantizer's loops from being vectorized. Here the rounding is the
+/// classic `(t + 1.5·2^52) − 1.5·2^52` (round to nearest, ties to even, exact for `|t| < 2^51`) with the ties moved
+/// away from zero, all plain SIMD-friendly arithmetic and compares; the values are exactly those of `round` and
+/// `floor` (−0.0 may come out as +0.0, which every caller turns into the same output).
+#[inline(always)]
+fn round_clamped(t: f64, lo: f64, hi: f64, truncate: bool) -> f64 {
+    const MAGIC: f64 = 6_755_399_441_055_744.0; // 1.5 · 2^52
+    let t = if t < lo { lo } else { t };
+    let t = if t > hi { hi } else { t };
+    let r = (t + MAGIC) - MAGIC; // nearest, ties to even
+    if truncate {
+        r - if r > t { 1.0 } else { 0.0 }
+    } else {
+        let d = t - r; // exact, in [−0.5, 0.5]
+        r + if d == 0.5 && t > 0.0 { 1.0 } else { 0.0 } - if d == -0.5 && t < 0.0 { 1.0 } else { 0.0 }
     }
 }
 
@@ -329,6 +356,28 @@ mod tests {
         let mut b = [f32::NAN];
         qz.process(&mut b);
         assert_eq!(b, [0.0]);
+    }
+
+    /// The libm-free rounding equals `f64::round` and `f64::floor` on ties, near-ties, signed zeros, the clamp
+    /// bounds and seeded random values, at the widest grid.
+    #[test]
+    fn round_clamped_matches_std_rounding() {
+        let (lo, hi) = (-((1u32 << 23) as f64) - 1.0, (1u32 << 23) as f64 + 1.0);
+        let mut cases = vec![0.0, -0.0, 0.5, -0.5, 1.5, -1.5, 2.5, -2.5, lo, hi, lo + 0.5, hi - 0.5, 1e300, -1e300];
+        cases.extend([0.5f64, 1.5, 2.5, 8388607.5].iter().flat_map(|&t| {
+            let (up, down) = (f64::from_bits(t.to_bits() + 1), f64::from_bits(t.to_bits() - 1));
+            [up, down, -up, -down]
+        }));
+        cases.extend([f64::INFINITY, f64::NEG_INFINITY]);
+        let mut rng = crate::rng::Pcg32::from_seed(5, 0);
+        for scale in [1.0, 3.0, 200.0, 9e6] {
+            cases.extend((0..20_000).map(|_| rng.uniform_centered() * 2.0 * scale));
+        }
+        for &t in &cases {
+            let c = t.clamp(lo, hi);
+            assert_eq!(round_clamped(t, lo, hi, false), c.round(), "round {t:e}");
+            assert_eq!(round_clamped(t, lo, hi, true), c.floor(), "floor {t:e}");
+        }
     }
 
     /// Handbook formula: SQNR of an N-bit quantizer on a full-scale sine is 6.02 N + 1.76 dB.

@@ -1,0 +1,152 @@
+#!/usr/bin/env bash
+# `make bench`: builds what it needs, measures side by side and prints one table of ratios with the machine facts.
+#
+#   scripts/bench.sh            the full run (20 s clip for the ratios, 60 s clip in the page, 10 min WAV for the CLI)
+#   scripts/bench.sh --quick    the same steps with tiny sizes (a smoke test for CI; a minute or two once built)
+#   make bench [QUICK=1]        the same
+#
+# Steps: machine facts; builds (release CLI; the ratio example and the criterion benches in their own target dir,
+# target/bench, so that they never invalidate the release build; the wasm core for the page); the ratio table's rows
+# (examples/bench_ratios.rs: core chain vs numpy, quantize vs copy, wasm in node vs native, spectrum vs numpy);
+# the page in headless Chromium (scripts/bench/page.mjs); the wasm size; the CLI's peak memory on a long WAV; the
+# criterion micro-benchmarks (benches/core.rs, short times); then the table (scripts/bench/table.mjs).
+# Results go to build/bench/. Timings are never asserted: these machines are shared and noisy, so every ratio is a
+# median of rounds that alternate the two sides, with the spread printed beside it.
+set -euo pipefail
+cd "$(dirname "$0")/.."
+ROOT=$PWD
+
+QUICK=0
+CRITERION=1
+for arg in "$@"; do
+  case "$arg" in
+    --quick) QUICK=1 ;;
+    --no-criterion) CRITERION=0 ;;
+    -h|--help) sed -n '2,15p' "$0"; exit 0 ;;
+    *) echo "bench: unknown option $arg (--quick, --no-criterion)" >&2; exit 2 ;;
+  esac
+done
+if [ "$QUICK" = 1 ]; then
+  PAGE_SECONDS=5; PAGE_ROUNDS=3; WAV_SECONDS=10; QUICK_ARG=--quick
+  CRITERION_ARGS=(--warm-up-time 0.05 --measurement-time 0.1 --sample-size 10 --noplot)
+else
+  PAGE_SECONDS=60; PAGE_ROUNDS=7; WAV_SECONDS=600; QUICK_ARG=
+  CRITERION_ARGS=(--warm-up-time 0.5 --measurement-time 1.5 --noplot)
+fi
+
+OUT=build/bench
+mkdir -p "$OUT"
+step() { printf '\n==> %s\n' "$*" >&2; }
+started=$(date +%s)
+
+step "setup"
+bash scripts/setup.sh > "$OUT/setup.log" 2>&1 || { cat "$OUT/setup.log" >&2; exit 1; }
+# shellcheck source=/dev/null
+source build/toolchain.env
+
+# ---- machine facts ----------------------------------------------------------------------------------------------
+{
+  echo "Stairstep benchmarks ($([ "$QUICK" = 1 ] && echo 'QUICK smoke run: tiny sizes, numbers are rough' || echo 'full run'))"
+  echo "date:     $(date -u '+%Y-%m-%d %H:%M UTC'), git $(git rev-parse --short HEAD 2>/dev/null || echo '?')$(git diff --quiet 2>/dev/null || echo ' (uncommitted changes)')"
+  echo "cpu:      $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2- | sed 's/^ *//'), $(nproc) cores; flags: $(grep -m1 '^flags' /proc/cpuinfo | grep -o -w -E 'avx2|avx512f|fma|sse4_2' | sort -u | tr '\n' ' ')"
+  echo "load:     $(cut -d' ' -f1-3 /proc/loadavg) (1, 5, 15 min) at the start: a shared machine"
+  echo "rustc:    $(rustc --version) (native: x86-64 baseline, no target-cpu), wasm toolchain $WASM_TOOLCHAIN"
+  echo "node:     $(node --version)"
+  echo "chromium: $(/usr/bin/chromium --version 2>/dev/null | head -1)"
+} > "$OUT/machine.txt"
+cat "$OUT/machine.txt" >&2
+
+# ---- builds -----------------------------------------------------------------------------------------------------
+step "build: release CLI"
+cargo build -q --release --bin stairstep
+step "build: ratio example and criterion benches (target/bench, bench profile)"
+export CARGO_TARGET_DIR_BENCH="$ROOT/target/bench"
+CARGO_TARGET_DIR=$CARGO_TARGET_DIR_BENCH cargo build -q --profile bench --example bench_ratios
+if [ "$CRITERION" = 1 ]; then
+  CARGO_TARGET_DIR=$CARGO_TARGET_DIR_BENCH cargo bench -q --bench core --no-run 2>&1 | grep -v -E '^\s*(Executable|Finished)' >&2 || true
+fi
+step "build: wasm core (scripts/build-wasm.sh)"
+bash scripts/build-wasm.sh >&2
+# The page under test: the committed one when it is fresh, otherwise one built from the current sources.
+PAGE=dist/stairstep.html
+if ! node scripts/build-page.mjs --check dist/stairstep.html > /dev/null 2>&1; then
+  PAGE=$OUT/stairstep.html
+  echo "bench: dist/stairstep.html is stale; measuring a page built from the current sources ($PAGE)" >&2
+  node scripts/build-page.mjs --wasm-dir build/wasm --out "$PAGE" >&2
+fi
+
+# ---- ratios: native vs numpy, quantize vs copy, wasm vs native, spectrum vs numpy --------------------------------
+step "ratios (examples/bench_ratios.rs; numpy and node run as its children)"
+"$CARGO_TARGET_DIR_BENCH/release/examples/bench_ratios" $QUICK_ARG --out-dir "$OUT" --python "$PYTHON" \
+  --wasm-dir build/wasm
+
+# ---- the page in headless Chromium --------------------------------------------------------------------------------
+step "page: ${PAGE_SECONDS} s stereo re-render in headless Chromium (scripts/bench/page.mjs)"
+node scripts/bench/page.mjs --page "$PAGE" --seconds "$PAGE_SECONDS" --rounds "$PAGE_ROUNDS" \
+  --preset "$OUT/chain-preset.json" --out "$OUT"
+
+# ---- wasm size ----------------------------------------------------------------------------------------------------
+step "wasm size"
+WASM=build/wasm/stairstep_opt.wasm
+raw=$(stat -c %s "$WASM")
+gz=$(gzip -9 -c "$WASM" | wc -c)
+node -e '
+  const [raw, gz] = process.argv.slice(1).map(Number);
+  const kb = (b) => `${(b / 1000).toFixed(1)} kB (${(b / 1024).toFixed(1)} KiB)`;
+  console.log(JSON.stringify({
+    what: "wasm size, gzip -9 (build/wasm/stairstep_opt.wasm)", ours: `${kb(gz)} gzipped`, reference: `${kb(raw)} raw`,
+    ratio: gz / 200000, lo: gz / 200000, hi: gz / 200000, rounds: 1, means: "gzipped size / the 200 kB aim (200,000 bytes)",
+    target: "≤ 1×", met: gz <= 200000, note: "wasm-opt -Os output, as inlined (base64) in the page",
+  }));' "$raw" "$gz" >> "$OUT/results.jsonl"
+echo "  $WASM: $raw bytes raw, $gz bytes gzipped" >&2
+
+# ---- CLI peak memory on a long file -------------------------------------------------------------------------------
+step "CLI peak memory: ${WAV_SECONDS} s stereo 48 kHz 16-bit WAV"
+LONG=$OUT/long-${WAV_SECONDS}s.wav
+if [ ! -f "$LONG" ]; then
+  env -u OPENBLAS_CORETYPE -u OPENBLAS_L2_SIZE "$PYTHON" tests/python/bench_reference.py --write-wav "$LONG.tmp" \
+    --seconds "$WAV_SECONDS"
+  mv "$LONG.tmp" "$LONG"
+fi
+/usr/bin/time -v target/release/stairstep render --quiet --force --preset "$OUT/chain-preset.json" "$LONG" \
+  -o "$OUT/long-out.wav" 2> "$OUT/time-v.txt" || { cat "$OUT/time-v.txt" >&2; exit 1; }
+rss_kb=$(grep 'Maximum resident set size' "$OUT/time-v.txt" | grep -o '[0-9]*$')
+wall=$(grep 'Elapsed (wall clock)' "$OUT/time-v.txt" | sed 's/.*): //')
+node -e '
+  const [rssKb, seconds, wall, wavBytes] = process.argv.slice(1);
+  const frames = Number(seconds) * 48000;
+  const decoded = frames * 2 * 4;
+  const rss = Number(rssKb) * 1024;
+  const mb = (b) => `${(b / 1e6).toFixed(0)} MB`;
+  console.log(JSON.stringify({
+    what: `CLI render peak memory, ${Number(seconds) / 60} min stereo 48 kHz WAV (${mb(Number(wavBytes))} file)`,
+    ours: `max RSS ${mb(rss)}`, reference: `decoded samples ${mb(decoded)} (${frames} frames × 2 ch × 4 B)`,
+    ratio: rss / decoded, lo: rss / decoded, hi: rss / decoded, rounds: 1, means: "max RSS / decoded sample bytes",
+    target: "", met: null, note: `/usr/bin/time -v, wall ${wall}; the CLI loads whole files today (streaming is in progress elsewhere)`,
+  }));' "$rss_kb" "$WAV_SECONDS" "$wall" "$(stat -c %s "$LONG")" >> "$OUT/results.jsonl"
+echo "  max RSS $rss_kb KiB, wall $wall" >&2
+rm -f "$OUT/long-out.wav"
+[ "$QUICK" = 1 ] && rm -f "$LONG"
+
+# ---- criterion micro-benchmarks -------------------------------------------------------------------------------------
+if [ "$CRITERION" = 1 ]; then
+  step "criterion micro-benchmarks (benches/core.rs, short times; full output in $OUT/criterion.txt)"
+  CARGO_TARGET_DIR=$CARGO_TARGET_DIR_BENCH cargo bench -q --bench core -- "${CRITERION_ARGS[@]}" \
+    > "$OUT/criterion.txt" 2>&1 || { cat "$OUT/criterion.txt" >&2; exit 1; }
+  # One line per benchmark: name, median time, throughput.
+  awk '
+    /^[^ ].*time:/ { name = $0; sub(/ *time:.*/, "", name); t = $0; sub(/.*time: *\[[^ ]* [^ ]* /, "", t); sub(/ [^ ]* [^ ]*\]$/, "", t); pending = 1; next }
+    /^[^ ]/ && !/time:|thrpt:|Benchmarking|Found|change:|No change|Performance|Change within|^Gnuplot|^WARNING|^Warning|mild|severe/ { name = $0; next }
+    / *time:/ { t = $0; sub(/.*time: *\[[^ ]* [^ ]* /, "", t); sub(/ [^ ]* [^ ]*\]$/, "", t); pending = 1; next }
+    / *thrpt:/ && pending { th = $0; sub(/.*thrpt: *\[[^ ]* [^ ]* /, "", th); sub(/ [^ ]* [^ ]*\]$/, "", th); printf "  %-62s %12s %16s\n", name, t, th; pending = 0 }
+  ' "$OUT/criterion.txt" > "$OUT/criterion-summary.txt"
+fi
+
+# ---- the table ----------------------------------------------------------------------------------------------------
+step "results ($(( $(date +%s) - started )) s)"
+node scripts/bench/table.mjs "$OUT"
+if [ "$CRITERION" = 1 ]; then
+  echo ''
+  echo 'Criterion micro-benchmarks, one block (4,096 samples) per iteration unless named (median time, throughput):'
+  cat "$OUT/criterion-summary.txt"
+fi
