@@ -516,7 +516,7 @@ fn main() {
         let label = if n == chain::BLOCK {
             label.to_string()
         } else {
-            format!("{label} of {} samples ({} MiB)", n, n * 4 >> 20)
+            format!("{label} of {} samples ({} MiB)", n, (n * 4) >> 20)
         };
         rows.push(
             &format!("8-bit quantize (no dither) vs copy, {label} (time)"),
