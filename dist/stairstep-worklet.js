@@ -1,5 +1,5 @@
 // Stairstep crusher: an AudioWorklet module with the DSP core (WebAssembly) inside; needs no other file.
-// stairstep-source-hash: fc47e052f77a1d40f53b64044d88afa1bd254a8ff1d9ffc04d47728525b3133f
+// stairstep-source-hash: de133ee72afb2cc77dc74b4060d8e8c63aaa3e7f9a4f9826ba8baccf21e8abde
 //   await ctx.audioWorklet.addModule('stairstep-worklet.js');
 //   const node = new AudioWorkletNode(ctx, 'stairstep-crusher', { outputChannelCount: [2],
 //     processorOptions: { preset: 'handheld' } });
