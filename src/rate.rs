@@ -254,17 +254,21 @@ impl Plan {
 }
 
 /// Steps `⌈k·num/den⌉` for `k = 0, 1, 2, …` exactly (quotient and remainder, no overflow for 32-bit rates).
+///
+/// `num/den` is split into `step_q + step_r/den` once, so each step is two additions and a carry instead of a
+/// 64-bit division and remainder (the dearest instructions of the hold path, once per reduced sample).
 #[derive(Debug, Clone, Copy)]
 struct CeilStep {
-    num: u64,
     den: u64,
+    step_q: u64,
+    step_r: u64,
     q: u64,
     r: u64,
 }
 
 impl CeilStep {
     fn new(num: u64, den: u64) -> Self {
-        CeilStep { num, den, q: 0, r: 0 }
+        CeilStep { den, step_q: num / den, step_r: num % den, q: 0, r: 0 }
     }
 
     #[inline]
@@ -274,9 +278,13 @@ impl CeilStep {
 
     #[inline]
     fn advance(&mut self) {
-        self.r += self.num;
-        self.q += self.r / self.den;
-        self.r %= self.den;
+        // r < den and step_r < den, so at most one carry: the same q and r as (r + num) / den and % den.
+        self.q += self.step_q;
+        self.r += self.step_r;
+        if self.r >= self.den {
+            self.r -= self.den;
+            self.q += 1;
+        }
     }
 }
 
