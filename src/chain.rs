@@ -392,12 +392,10 @@ impl Chain {
             let x = x.as_ref();
             assert_eq!(x.len(), n, "all channels of a block have the same length");
             lane.work.clear();
-            for &s in x {
-                self.non_finite += (!s.is_finite()) as u64;
-                lane.work.push(sanitize(s));
-            }
+            self.non_finite += x.iter().filter(|s| !s.is_finite()).count() as u64;
+            lane.work.extend(x.iter().map(|&s| sanitize(s)));
             self.input_levels.push(&lane.work);
-            lane.pending_input.extend(lane.work.iter().copied());
+            lane.pending_input.extend(&lane.work);
             lane.run(false);
             lane.emit(ch, out, &mut self.output_levels, &mut self.sqnr);
         }
@@ -563,11 +561,15 @@ impl Lane {
     /// the audition samples line up with.
     fn emit(&mut self, ch: usize, out: &mut ChainOutput, levels: &mut LevelsAcc, sqnr: &mut SqnrAcc) {
         levels.push(&self.audition_buf);
-        self.pending_audition.extend(self.audition_buf.iter().copied());
+        self.pending_audition.extend(&self.audition_buf);
         let n = self.pending_input.len().min(self.pending_audition.len());
-        for (x, y) in self.pending_input.drain(..n).zip(self.pending_audition.drain(..n)) {
+        // The same pairs in the same order as draining both queues, over plain slices (a tight loop).
+        let (xs, ys) = (self.pending_input.make_contiguous(), self.pending_audition.make_contiguous());
+        for (&x, &y) in xs[..n].iter().zip(&ys[..n]) {
             sqnr.push(x, y);
         }
+        self.pending_input.drain(..n);
+        self.pending_audition.drain(..n);
         out.export[ch].extend_from_slice(&self.export_buf);
         out.audition[ch].extend_from_slice(&self.audition_buf);
     }
