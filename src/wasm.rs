@@ -5,7 +5,9 @@
 
 use crate::analysis::{envelope, SpectrumAnalyzer, Window};
 use crate::chain::{self, Render};
+use crate::prep::PrepParams;
 use crate::{demo, io, Clip, Error, Preset};
+use std::borrow::Cow;
 use wasm_bindgen::prelude::*;
 
 /// Most frames a page spectrum averages per channel (spread over the sound), so long files stay quick to redraw.
@@ -22,6 +24,11 @@ pub struct Session {
     preset: Preset,
     render: Option<Render>,
     analyzer: Option<SpectrumAnalyzer>,
+    /// The chain input's spectrum for (FFT size, window, preparation): it changes only on load or when the
+    /// preparation settings change, yet every render asks for it.
+    input_spectrum: Option<(usize, Window, Option<PrepParams>, Vec<f32>)>,
+    /// The preparation settings of the latest render.
+    rendered_prep: PrepParams,
 }
 
 impl Default for Session {
@@ -36,7 +43,14 @@ impl Session {
     #[wasm_bindgen(constructor)]
     pub fn new() -> Session {
         let source = demo::demo(demo::DEMOS[0]).expect("built-in demo");
-        Session { source, preset: Preset::default(), render: None, analyzer: None }
+        Session {
+            source,
+            preset: Preset::default(),
+            render: None,
+            analyzer: None,
+            input_spectrum: None,
+            rendered_prep: PrepParams::default(),
+        }
     }
 
     /// Names of the built-in demos, as a JSON array.
@@ -72,6 +86,7 @@ impl Session {
     fn set_source(&mut self, clip: Clip) -> Result<String, JsError> {
         self.source = clip;
         self.render = None;
+        self.input_spectrum = None;
         Ok(self.describe())
     }
 
@@ -112,6 +127,7 @@ impl Session {
         v["prep"] = serde_json::to_value(&r.prep).unwrap_or_default();
         v["export_loop"] = serde_json::to_value(r.export_meta.loops.first()).unwrap_or_default();
         self.render = Some(r);
+        self.rendered_prep = self.preset.prep.clone();
         Ok(v.to_string())
     }
 
@@ -124,13 +140,16 @@ impl Session {
         }
     }
 
-    fn signal(&self, which: &str, ch: usize) -> Result<Vec<f32>, JsError> {
-        let pick = |c: &Clip| c.channels[ch.min(c.channel_count() - 1)].clone();
+    /// One channel of `which`, borrowed where it is stored (source, input, output) and computed for the error.
+    fn signal(&self, which: &str, ch: usize) -> Result<Cow<'_, [f32]>, JsError> {
+        fn pick(c: &Clip, ch: usize) -> Cow<'_, [f32]> {
+            Cow::Borrowed(&c.channels[ch.min(c.channel_count() - 1)])
+        }
         match (which, &self.render) {
-            ("source", _) | ("input", None) => Ok(pick(&self.source)),
-            ("input", Some(r)) => Ok(pick(r.input(&self.source))),
-            ("output", Some(r)) => Ok(pick(&r.audition)),
-            ("error", Some(r)) => Ok(r.error(&self.source, ch.min(r.audition.channel_count() - 1))),
+            ("source", _) | ("input", None) => Ok(pick(&self.source, ch)),
+            ("input", Some(r)) => Ok(pick(r.input(&self.source), ch)),
+            ("output", Some(r)) => Ok(pick(&r.audition, ch)),
+            ("error", Some(r)) => Ok(Cow::Owned(r.error(&self.source, ch.min(r.audition.channel_count() - 1)))),
             ("output" | "error", None) => Err(JsError::new("nothing rendered yet")),
             _ => Err(JsError::new(&format!("unknown signal {which:?}: source, input, output or error"))),
         }
@@ -139,7 +158,7 @@ impl Session {
     /// Samples of one channel of `source` (as loaded), `input` (what the chain sees: the prepared sound), `output`
     /// (at the source rate) or `error` (output − input).
     pub fn samples(&self, which: &str, channel: usize) -> Result<Vec<f32>, JsError> {
-        self.signal(which, channel)
+        self.signal(which, channel).map(Cow::into_owned)
     }
 
     /// Welch spectrum in dBFS of all channels of `which` (at most [`SPECTRUM_FRAMES`] frames per channel, spread over
@@ -147,14 +166,27 @@ impl Session {
     pub fn spectrum(&mut self, which: &str, fft_size: usize, window: &str) -> Result<Vec<f32>, JsError> {
         let window: Window =
             serde_json::from_value(window.into()).map_err(|_| JsError::new(&format!("unknown window {window:?}")))?;
+        // The prepared input depends on the preparation of the render that made it (none before a render).
+        let prep = self.render.as_ref().map(|_| self.rendered_prep.clone());
+        if which == "input" {
+            if let Some((size, w, p, s)) = &self.input_spectrum {
+                if *size == fft_size && *w == window && *p == prep {
+                    return Ok(s.clone());
+                }
+            }
+        }
         let mut a = match self.analyzer.take() {
             Some(a) if a.size() == fft_size && a.window() == window => a,
             _ => SpectrumAnalyzer::new(fft_size, window).map_err(js_err)?.with_max_frames(SPECTRUM_FRAMES),
         };
-        let chans: Vec<Vec<f32>> =
+        let chans: Vec<Cow<'_, [f32]>> =
             (0..self.channels_of(which)).map(|c| self.signal(which, c)).collect::<Result<_, _>>()?;
         let out = a.analyze(&chans);
+        drop(chans);
         self.analyzer = Some(a);
+        if which == "input" {
+            self.input_spectrum = Some((fft_size, window, prep, out.clone()));
+        }
         Ok(out)
     }
 
