@@ -65,8 +65,13 @@ CARGO_TARGET_DIR=$CARGO_TARGET_DIR_BENCH cargo build -q --profile bench --exampl
 if [ "$CRITERION" = 1 ]; then
   CARGO_TARGET_DIR=$CARGO_TARGET_DIR_BENCH cargo bench -q --bench core --no-run 2>&1 | grep -v -E '^\s*(Executable|Finished)' >&2 || true
 fi
-step "build: wasm core (scripts/build-wasm.sh)"
-bash scripts/build-wasm.sh >&2
+step "build: wasm core (scripts/build-wasm.sh, unless build/wasm is newer than the sources)"
+if [ -f build/wasm/stairstep_opt.wasm ] && [ -f build/wasm/stairstep.js ] &&
+   [ -z "$(find src Cargo.toml Cargo.lock -newer build/wasm/stairstep_opt.wasm -print -quit)" ]; then
+  echo "  build/wasm is up to date" >&2
+else
+  bash scripts/build-wasm.sh >&2
+fi
 # The page under test: the committed one when it is fresh, otherwise one built from the current sources.
 PAGE=dist/stairstep.html
 if ! node scripts/build-page.mjs --check dist/stairstep.html > /dev/null 2>&1; then
