@@ -60,10 +60,15 @@ cat "$OUT/machine.txt" >&2
 step "build: release CLI"
 cargo build -q --release --bin stairstep
 step "build: ratio example and criterion benches (target/bench, bench profile)"
-export CARGO_TARGET_DIR_BENCH="$ROOT/target/bench"
-CARGO_TARGET_DIR=$CARGO_TARGET_DIR_BENCH cargo build -q --profile bench --example bench_ratios
+# Own target dir, so that switching profiles never invalidates the release build; panic=unwind (the release
+# profile aborts, but a bench harness always unwinds), so that the library is built once, not once per panic
+# strategy into the same file names.
+CARGO_TARGET_DIR_BENCH="$ROOT/target/bench"
+bench_cargo() { CARGO_TARGET_DIR=$CARGO_TARGET_DIR_BENCH CARGO_PROFILE_BENCH_PANIC=unwind cargo "$@"; }
+bench_cargo build -q --profile bench --example bench_ratios
 if [ "$CRITERION" = 1 ]; then
-  CARGO_TARGET_DIR=$CARGO_TARGET_DIR_BENCH cargo bench -q --bench core --no-run 2>&1 | grep -v -E '^\s*(Executable|Finished)' >&2 || true
+  bench_cargo bench -q --bench core --no-run > "$OUT/criterion-build.log" 2>&1 ||
+    { cat "$OUT/criterion-build.log" >&2; exit 1; }
 fi
 step "build: wasm core (scripts/build-wasm.sh, unless build/wasm is newer than the sources)"
 if [ -f build/wasm/stairstep_opt.wasm ] && [ -f build/wasm/stairstep.js ] &&
@@ -124,7 +129,7 @@ node -e '
   const rss = Number(rssKb) * 1024;
   const mb = (b) => `${(b / 1e6).toFixed(0)} MB`;
   console.log(JSON.stringify({
-    what: `CLI render peak memory, ${Number(seconds) / 60} min stereo 48 kHz WAV (${mb(Number(wavBytes))} file)`,
+    what: `CLI render peak memory, ${Number(seconds) >= 60 ? `${Number(seconds) / 60} min` : `${seconds} s`} stereo 48 kHz 16-bit WAV (${mb(Number(wavBytes))})`,
     ours: `max RSS ${mb(rss)}`, reference: `decoded samples ${mb(decoded)} (${frames} frames × 2 ch × 4 B)`,
     ratio: rss / decoded, lo: rss / decoded, hi: rss / decoded, rounds: 1, means: "max RSS / decoded sample bytes",
     target: "", met: null, note: `/usr/bin/time -v, wall ${wall}; the CLI loads whole files today (streaming is in progress elsewhere)`,
@@ -136,7 +141,7 @@ rm -f "$OUT/long-out.wav"
 # ---- criterion micro-benchmarks -------------------------------------------------------------------------------------
 if [ "$CRITERION" = 1 ]; then
   step "criterion micro-benchmarks (benches/core.rs, short times; full output in $OUT/criterion.txt)"
-  CARGO_TARGET_DIR=$CARGO_TARGET_DIR_BENCH cargo bench -q --bench core -- "${CRITERION_ARGS[@]}" \
+  bench_cargo bench -q --bench core -- "${CRITERION_ARGS[@]}" \
     > "$OUT/criterion.txt" 2>&1 || { cat "$OUT/criterion.txt" >&2; exit 1; }
   # One line per benchmark: name, median time, throughput.
   awk '
