@@ -582,7 +582,7 @@ fn main() {
             &pair.ratios(true),
             "native time / wasm time",
             None,
-            "wasm: Session.spectrum('input'), which also copies the channels out of the session",
+            "wasm: Session.spectrum('output') (the session caches the input's), same frame count and size",
         );
     }
 
