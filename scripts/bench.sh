@@ -145,11 +145,15 @@ if [ "$CRITERION" = 1 ]; then
     > "$OUT/criterion.txt" 2>&1 || { cat "$OUT/criterion.txt" >&2; exit 1; }
   # One line per benchmark: name, median time, throughput.
   awk '
-    /^[^ ].*time:/ { name = $0; sub(/ *time:.*/, "", name); t = $0; sub(/.*time: *\[[^ ]* [^ ]* /, "", t); sub(/ [^ ]* [^ ]*\]$/, "", t); pending = 1; next }
-    /^[^ ]/ && !/time:|thrpt:|Benchmarking|Found|change:|No change|Performance|Change within|^Gnuplot|^WARNING|^Warning|mild|severe/ { name = $0; next }
-    / *time:/ { t = $0; sub(/.*time: *\[[^ ]* [^ ]* /, "", t); sub(/ [^ ]* [^ ]*\]$/, "", t); pending = 1; next }
-    / *thrpt:/ && pending { th = $0; sub(/.*thrpt: *\[[^ ]* [^ ]* /, "", th); sub(/ [^ ]* [^ ]*\]$/, "", th); printf "  %-62s %12s %16s\n", name, t, th; pending = 0 }
-  ' "$OUT/criterion.txt" > "$OUT/criterion-summary.txt"
+    function mid(line) { sub(/.*: *\[[^ ]* [^ ]* /, "", line); sub(/ [^ ]* [^ ]*\].*$/, "", line); return line }
+    /change:/ { skip = 1; next }
+    /^[^ ]/ && !/^(Benchmarking|Found|Gnuplot|WARNING|Warning)/ {
+      skip = 0; name = $0; sub(/ *time:.*/, "", name); if ($0 !~ /time:/) next
+    }
+    skip { next }
+    /time:/ { t = mid($0); next }
+    /thrpt:/ { printf "  %-62s %12s %16s\n", name, t, mid($0) }
+' "$OUT/criterion.txt" > "$OUT/criterion-summary.txt"
 fi
 
 # ---- the table ----------------------------------------------------------------------------------------------------
