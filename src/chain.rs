@@ -565,9 +565,7 @@ impl Lane {
         let n = self.pending_input.len().min(self.pending_audition.len());
         // The same pairs in the same order as draining both queues, over plain slices (a tight loop).
         let (xs, ys) = (self.pending_input.make_contiguous(), self.pending_audition.make_contiguous());
-        for (&x, &y) in xs[..n].iter().zip(&ys[..n]) {
-            sqnr.push(x, y);
-        }
+        sqnr.push_slices(&xs[..n], &ys[..n]);
         self.pending_input.drain(..n);
         self.pending_audition.drain(..n);
         out.export[ch].extend_from_slice(&self.export_buf);

@@ -90,12 +90,38 @@ impl Dither {
         match self.kind {
             DitherKind::None => 0.0,
             DitherKind::Rpdf => 2.0 * self.peak * self.rng.uniform_centered(),
-            DitherKind::Tpdf => self.peak * (self.rng.uniform_centered() + self.rng.uniform_centered()),
+            DitherKind::Tpdf => {
+                let (a, b) = self.rng.uniform_centered_pair();
+                self.peak * (a + b)
+            }
             DitherKind::HighpassTpdf => {
                 let u = self.rng.uniform_centered();
                 let d = self.peak * (u - self.prev);
                 self.prev = u;
                 d
+            }
+        }
+    }
+
+    /// Fills `out` with the next `out.len()` dither values, exactly as that many [`sample`](Self::sample) calls
+    /// would: one tight loop per kind, with nothing but the generator in it.
+    pub fn fill(&mut self, out: &mut [f64]) {
+        let peak = self.peak;
+        match self.kind {
+            DitherKind::None => out.fill(0.0),
+            DitherKind::Rpdf => out.iter_mut().for_each(|d| *d = 2.0 * peak * self.rng.uniform_centered()),
+            DitherKind::Tpdf => out.iter_mut().for_each(|d| {
+                let (a, b) = self.rng.uniform_centered_pair();
+                *d = peak * (a + b);
+            }),
+            DitherKind::HighpassTpdf => {
+                let mut prev = self.prev;
+                for d in out.iter_mut() {
+                    let u = self.rng.uniform_centered();
+                    *d = peak * (u - prev);
+                    prev = u;
+                }
+                self.prev = prev;
             }
         }
     }

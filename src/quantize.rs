@@ -122,7 +122,12 @@ pub struct Quantizer {
     dither: Dither,
     shaper: NoiseShaper,
     clipped: u64,
+    /// Dither values for the block being processed (allocated once, here, never in `process`).
+    scratch: Vec<f64>,
 }
+
+/// Samples the dithered block path handles at a time (the size of [`Quantizer`]'s dither buffer).
+const DITHER_CHUNK: usize = 1024;
 
 impl Quantizer {
     /// Validates `params` and builds the stage. `seed` and `stream` select the dither sequence.
@@ -151,6 +156,7 @@ impl Quantizer {
             dither,
             shaper,
             clipped: 0,
+            scratch: if params.dither == DitherKind::None { Vec::new() } else { vec![0.0; DITHER_CHUNK] },
         })
     }
 
@@ -190,28 +196,75 @@ impl Quantizer {
     }
 
     /// Quantizes `buf` in place. Never allocates.
+    ///
+    /// Every path computes exactly what [`quantize_sample`](Self::quantize_sample) does for each sample in turn (the
+    /// property tests compare them); the fast ones only hoist the constant choices out of the loop.
     pub fn process(&mut self, buf: &mut [f32]) {
-        if !self.shaper.is_active() && self.dither.kind() == DitherKind::None {
-            // Fast path: a pure function of each sample.
-            let (inv, off, step, kmin, kmax) = (self.inv_step, self.offset, self.step, self.kmin, self.kmax);
-            // One loop per rounding rule, so that each is a straight-line loop the compiler vectorizes.
-            let quantize = |buf: &mut [f32], truncate: bool| {
-                let mut clipped = 0u64;
-                for s in buf.iter_mut() {
-                    let x = if s.is_nan() { 0.0 } else { *s as f64 };
-                    let t = x * inv - off;
-                    let k = round_clamped(t, kmin - 1.0, kmax + 1.0, truncate);
-                    clipped += (k > kmax || k < kmin) as u64;
-                    *s = ((k.clamp(kmin, kmax) + off) * step) as f32;
-                }
-                clipped
-            };
-            self.clipped += if self.truncate { quantize(buf, true) } else { quantize(buf, false) };
-        } else {
+        if self.shaper.is_active() {
             for s in buf.iter_mut() {
                 *s = self.quantize_sample(*s);
             }
+            return;
         }
+        let (inv, off, step, kmin, kmax) = (self.inv_step, self.offset, self.step, self.kmin, self.kmax);
+        self.clipped += match (self.dither.kind(), self.truncate) {
+            (DitherKind::None, truncate) => match self.exact_f32() {
+                // One loop per rounding rule, so that each is a straight-line loop the compiler vectorizes.
+                Some(scale) if truncate => quantize_pow2_f32(buf, scale, kmin as f32, kmax as f32, true),
+                Some(scale) => quantize_pow2_f32(buf, scale, kmin as f32, kmax as f32, false),
+                None => {
+                    let quantize = |buf: &mut [f32], truncate: bool| {
+                        let mut clipped = 0u64;
+                        for s in buf.iter_mut() {
+                            let x = if s.is_nan() { 0.0 } else { *s as f64 };
+                            let t = x * inv - off;
+                            let k = round_clamped(t, kmin - 1.0, kmax + 1.0, truncate);
+                            clipped += (k > kmax || k < kmin) as u64;
+                            *s = ((k.clamp(kmin, kmax) + off) * step) as f32;
+                        }
+                        clipped
+                    };
+                    if truncate {
+                        quantize(buf, true)
+                    } else {
+                        quantize(buf, false)
+                    }
+                }
+            },
+            (_, truncate) => {
+                // Dither without noise shaping: the generator's values for a chunk first (a loop with nothing but
+                // the generator's serial state in it), then a straight-line loop the compiler vectorizes.
+                let (dither, scratch) = (&mut self.dither, &mut self.scratch);
+                let run = |buf: &mut [f32], d: &[f64], truncate: bool| {
+                    let mut clipped = 0u64;
+                    for (s, &d) in buf.iter_mut().zip(d) {
+                        let x = if s.is_nan() { 0.0 } else { *s as f64 };
+                        let t = (x * inv - off) + d;
+                        let k = round_clamped(t, kmin - 1.0, kmax + 1.0, truncate);
+                        clipped += (k > kmax || k < kmin) as u64;
+                        *s = ((k.clamp(kmin, kmax) + off) * step) as f32;
+                    }
+                    clipped
+                };
+                let mut clipped = 0;
+                for chunk in buf.chunks_mut(DITHER_CHUNK) {
+                    let d = &mut scratch[..chunk.len()];
+                    dither.fill(d);
+                    clipped += if truncate { run(chunk, d, true) } else { run(chunk, d, false) };
+                }
+                clipped
+            }
+        };
+    }
+
+    /// `Some(2^(N−1))` when this quantizer can run in `f32` with the very same results as in `f64`: a power-of-two
+    /// step on the mid-tread grid (`x · 2^(N−1)` is then exact in `f32`, and so are the rounding and the output
+    /// `k · 2^−(N−1)`), with codes below 2^22 so that the rounding trick of [`round_clamped_f32`] is exact.
+    fn exact_f32(&self) -> Option<f32> {
+        let inv = self.inv_step;
+        let pow2 = inv >= 1.0 && inv.fract() == 0.0 && (inv as u64).is_power_of_two() && self.step * inv == 1.0;
+        (pow2 && self.offset == 0.0 && self.kmax < (1u64 << 22) as f64 && -self.kmin <= (1u64 << 22) as f64)
+            .then_some(inv as f32)
     }
 
     /// Clears the error-feedback history, restarts the dither stream and the clip counter.
@@ -250,6 +303,41 @@ fn round_clamped(t: f64, lo: f64, hi: f64, truncate: bool) -> f64 {
         r - if r > t { 1.0 } else { 0.0 }
     } else {
         let d = t - r; // exact, in [−0.5, 0.5]
+        r + if d == 0.5 && t > 0.0 { 1.0 } else { 0.0 } - if d == -0.5 && t < 0.0 { 1.0 } else { 0.0 }
+    }
+}
+
+/// The undithered quantizer in `f32` for a power-of-two step (see [`Quantizer::exact_f32`]); returns the clip count.
+/// Four samples per SSE2 or wasm SIMD instruction instead of two in `f64`.
+#[inline(always)]
+fn quantize_pow2_f32(buf: &mut [f32], scale: f32, kmin: f32, kmax: f32, truncate: bool) -> u64 {
+    let step = 1.0 / scale; // exact: a power of two
+    let mut clipped = 0u64;
+    // Chunks keep the u32 counter (which stays in a vector register beside the samples) from overflowing.
+    for chunk in buf.chunks_mut(1 << 16) {
+        let mut c = 0u32;
+        for s in chunk.iter_mut() {
+            let x = if s.is_nan() { 0.0 } else { *s };
+            let k = round_clamped_f32(x * scale, kmin - 1.0, kmax + 1.0, truncate);
+            c += (k > kmax || k < kmin) as u32;
+            *s = k.clamp(kmin, kmax) * step;
+        }
+        clipped += c as u64;
+    }
+    clipped
+}
+
+/// [`round_clamped`] in `f32`, exact for bounds within ±2^22 (`1.5·2^23` is the magic constant).
+#[inline(always)]
+fn round_clamped_f32(t: f32, lo: f32, hi: f32, truncate: bool) -> f32 {
+    const MAGIC: f32 = 12_582_912.0; // 1.5 · 2^23
+    let t = if t < lo { lo } else { t };
+    let t = if t > hi { hi } else { t };
+    let r = (t + MAGIC) - MAGIC;
+    if truncate {
+        r - if r > t { 1.0 } else { 0.0 }
+    } else {
+        let d = t - r;
         r + if d == 0.5 && t > 0.0 { 1.0 } else { 0.0 } - if d == -0.5 && t < 0.0 { 1.0 } else { 0.0 }
     }
 }

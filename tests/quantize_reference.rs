@@ -126,6 +126,32 @@ fn matches_numpy_rounding_at_every_bit_depth() {
     }
 }
 
+/// The f32 block path against the f64 per-sample path over a spread of every f32 bit pattern (one in 65,521: all
+/// exponents, signs, NaN, ±Inf, subnormals), at every width, both roundings and both grids.
+#[test]
+fn block_paths_equal_per_sample_path_over_all_exponents() {
+    let xs: Vec<f32> = (0..=u32::MAX / 65_521).map(|i| f32::from_bits(i.wrapping_mul(65_521))).collect();
+    for bits in 1..=24 {
+        for rounding in [Rounding::Nearest, Rounding::Truncate] {
+            for grid in [Grid::MidTread, Grid::MidRise] {
+                let p = QuantizeParams { bits, rounding, grid, ..Default::default() };
+                let (mut fast, mut slow) = (Quantizer::new(&p, 0, 0).unwrap(), Quantizer::new(&p, 0, 0).unwrap());
+                let mut a = xs.clone();
+                fast.process(&mut a);
+                for (&x, &y) in xs.iter().zip(&a) {
+                    let want = slow.quantize_sample(x);
+                    assert_eq!(
+                        y.to_bits(),
+                        want.to_bits(),
+                        "{bits} bits {rounding:?} {grid:?}: x {x:e} -> {y} vs {want}"
+                    );
+                }
+                assert_eq!(fast.clipped(), slow.clipped());
+            }
+        }
+    }
+}
+
 fn any_params() -> impl Strategy<Value = QuantizeParams> {
     (
         1u32..=24,
@@ -160,15 +186,23 @@ proptest! {
         prop_assert!(once.is_finite() && (-1.0..=1.0).contains(&once));
     }
 
-    /// The fast path and the general (dither-capable) path agree sample for sample.
+    /// The block paths (f32 for power-of-two steps, f64 otherwise, dithered) and the per-sample path agree bit for
+    /// bit, on any input at all, with the same clip count.
     #[test]
-    fn fast_path_equals_general_path(p in any_params(), xs in proptest::collection::vec(-1.5f32..1.5, 1..200)) {
-        let mut fast = Quantizer::new(&p, 0, 0).unwrap();
-        let mut slow = Quantizer::new(&p, 0, 0).unwrap();
+    fn fast_path_equals_general_path(
+        p in any_params(),
+        levels in prop_oneof![Just(None), (2u32..5000).prop_map(Some)],
+        dither in prop_oneof![Just(DitherKind::None), Just(DitherKind::Rpdf), Just(DitherKind::Tpdf), Just(DitherKind::HighpassTpdf)],
+        xs in proptest::collection::vec(prop_oneof![-1.5f32..1.5, proptest::num::f32::ANY], 1..200),
+    ) {
+        let grid = if levels.is_some_and(|l| l % 2 == 1) { Grid::MidTread } else { p.grid };
+        let p = QuantizeParams { levels, grid, dither, ..p };
+        let mut fast = Quantizer::new(&p, 7, 1).unwrap();
+        let mut slow = Quantizer::new(&p, 7, 1).unwrap();
         let mut a = xs.clone();
         fast.process(&mut a);
         let b: Vec<f32> = xs.iter().map(|&x| slow.quantize_sample(x)).collect();
-        prop_assert_eq!(a, b);
+        prop_assert_eq!(a.iter().map(|v| v.to_bits()).collect::<Vec<_>>(), b.iter().map(|v| v.to_bits()).collect::<Vec<_>>());
         prop_assert_eq!(fast.clipped(), slow.clipped());
     }
 }

@@ -33,75 +33,142 @@ impl Levels {
     }
 }
 
+/// Independent partial sums the accumulators keep. Sample `i` of everything pushed (counted across pushes) goes to
+/// lane `i % LANES`, so the figures depend only on the sequence of samples, never on how it was split into pushes,
+/// and the per-lane loops are straight-line code the compiler vectorizes (a single running `f64` sum is a chain of
+/// dependent additions, one per sample, and its order is fixed by IEEE rules). The lanes are added in index order
+/// at the end: the same figures on every target.
+const LANES: usize = 4;
+
+/// Splits `n` samples starting at stream position `pos` into a scalar head (up to the next lane boundary), whole
+/// chunks of [`LANES`] and a scalar tail.
+#[inline]
+fn split_at_lanes(pos: u64, n: usize) -> usize {
+    (((LANES as u64 - pos % LANES as u64) % LANES as u64) as usize).min(n)
+}
+
 /// Accumulates [`Levels`] block by block (for streams).
 #[derive(Debug, Clone, Default)]
 pub struct LevelsAcc {
-    peak: f64,
-    sum: f64,
-    sum2: f64,
-    at_fs: u64,
-    non_finite: u64,
-    n: u64,
+    peak: [f64; LANES],
+    sum: [f64; LANES],
+    sum2: [f64; LANES],
+    at_fs: [u64; LANES],
+    non_finite: [u64; LANES],
+    /// Samples pushed, finite or not (the stream position).
+    pos: u64,
 }
 
 impl LevelsAcc {
+    /// Adds one sample to lane `i`; a non-finite sample is counted and otherwise adds nothing.
+    #[inline(always)]
+    fn add(&mut self, i: usize, s: f32) {
+        let finite = s.is_finite();
+        let v = if finite { s as f64 } else { 0.0 };
+        let a = v.abs();
+        self.peak[i] = if a > self.peak[i] { a } else { self.peak[i] };
+        self.sum[i] += v;
+        self.sum2[i] += v * v;
+        self.at_fs[i] += (a >= 1.0) as u64;
+        self.non_finite[i] += !finite as u64;
+    }
+
     /// Adds samples.
     pub fn push(&mut self, x: &[f32]) {
-        for &s in x {
-            if !s.is_finite() {
-                self.non_finite += 1;
-                continue;
-            }
-            let v = s as f64;
-            self.peak = self.peak.max(v.abs());
-            self.sum += v;
-            self.sum2 += v * v;
-            self.at_fs += (v.abs() >= 1.0) as u64;
-            self.n += 1;
+        let head = split_at_lanes(self.pos, x.len());
+        let lane0 = (self.pos % LANES as u64) as usize;
+        for (j, &s) in x[..head].iter().enumerate() {
+            self.add(lane0 + j, s);
         }
+        let mut chunks = x[head..].chunks_exact(LANES);
+        for c in &mut chunks {
+            for (i, &s) in c.iter().enumerate() {
+                self.add(i, s);
+            }
+        }
+        for (i, &s) in chunks.remainder().iter().enumerate() {
+            self.add(i, s);
+        }
+        self.pos += x.len() as u64;
     }
 
     /// The levels of everything pushed so far.
     pub fn finish(&self) -> Levels {
-        let n = self.n;
-        let ms = if n > 0 { self.sum2 / n as f64 } else { 0.0 };
-        let peak_dbfs = amp_db(self.peak);
+        let non_finite: u64 = self.non_finite.iter().sum();
+        let n = self.pos - non_finite;
+        let sum: f64 = self.sum.iter().sum();
+        let sum2: f64 = self.sum2.iter().sum();
+        let peak = self.peak.iter().fold(0.0f64, |m, &p| if p > m { p } else { m });
+        let ms = if n > 0 { sum2 / n as f64 } else { 0.0 };
+        let peak_dbfs = amp_db(peak);
         Levels {
             peak_dbfs,
             rms_dbfs: power_db(2.0 * ms),
-            dc: if n > 0 { self.sum / n as f64 } else { 0.0 },
+            dc: if n > 0 { sum / n as f64 } else { 0.0 },
             crest_db: if ms > 0.0 { peak_dbfs - power_db(ms) } else { 0.0 },
-            at_full_scale: self.at_fs,
-            non_finite: self.non_finite,
+            at_full_scale: self.at_fs.iter().sum(),
+            non_finite,
             samples: n,
         }
     }
 }
 
-/// Accumulates an SQNR from (reference, output) sample pairs (for streams).
+/// Accumulates an SQNR from (reference, output) sample pairs (for streams), in [`LANES`] partial sums like
+/// [`LevelsAcc`].
 #[derive(Debug, Clone, Default)]
 pub struct SqnrAcc {
-    signal: f64,
-    error: f64,
+    signal: [f64; LANES],
+    error: [f64; LANES],
+    /// Pairs pushed (the stream position).
+    pos: u64,
 }
 
 impl SqnrAcc {
-    /// Adds one pair; non-finite samples are skipped.
+    #[inline(always)]
+    fn add(&mut self, i: usize, reference: f32, output: f32) {
+        let ok = reference.is_finite() && output.is_finite();
+        let (r, o) = if ok { (reference as f64, output as f64) } else { (0.0, 0.0) };
+        self.signal[i] += r * r;
+        self.error[i] += (o - r) * (o - r);
+    }
+
+    /// Adds one pair; a pair with a non-finite sample adds nothing.
     #[inline]
     pub fn push(&mut self, reference: f32, output: f32) {
-        if reference.is_finite() && output.is_finite() {
-            let (r, o) = (reference as f64, output as f64);
-            self.signal += r * r;
-            self.error += (o - r) * (o - r);
+        self.add((self.pos % LANES as u64) as usize, reference, output);
+        self.pos += 1;
+    }
+
+    /// Adds the pairs `(reference[i], output[i])`, exactly as pushing them one by one would.
+    pub fn push_slices(&mut self, reference: &[f32], output: &[f32]) {
+        let n = reference.len().min(output.len());
+        let (reference, output) = (&reference[..n], &output[..n]);
+        let head = split_at_lanes(self.pos, n);
+        let lane0 = (self.pos % LANES as u64) as usize;
+        for j in 0..head {
+            self.add(lane0 + j, reference[j], output[j]);
         }
+        let mut rc = reference[head..].chunks_exact(LANES);
+        let mut oc = output[head..].chunks_exact(LANES);
+        for (r, o) in (&mut rc).zip(&mut oc) {
+            for i in 0..LANES {
+                self.add(i, r[i], o[i]);
+            }
+        }
+        for (i, (&r, &o)) in rc.remainder().iter().zip(oc.remainder()).enumerate() {
+            self.add(i, r, o);
+        }
+        self.pos += n as u64;
     }
 
     /// SQNR in dB so far (+240 dB for an exact match).
     pub fn db(&self) -> f64 {
-        if self.error == 0.0 {
+        let signal: f64 = self.signal.iter().sum();
+        let error: f64 = self.error.iter().sum();
+        if error == 0.0 {
             -super::FLOOR_DB
         } else {
-            power_db(self.signal / self.error)
+            power_db(signal / error)
         }
     }
 }
@@ -111,9 +178,7 @@ impl SqnrAcc {
 pub fn sqnr_db<A: AsRef<[f32]>, B: AsRef<[f32]>>(reference: &[A], output: &[B]) -> f64 {
     let mut acc = SqnrAcc::default();
     for (r, o) in reference.iter().zip(output) {
-        for (&r, &o) in r.as_ref().iter().zip(o.as_ref()) {
-            acc.push(r, o);
-        }
+        acc.push_slices(r.as_ref(), o.as_ref());
     }
     acc.db()
 }
@@ -179,6 +244,47 @@ mod tests {
         let e = envelope(&[], 0, 0, 4);
         assert_eq!(e, vec![0.0; 8]);
         assert_eq!(sqnr_db(&[vec![0.5f32]], &[vec![0.5f32]]), 240.0);
+    }
+
+    #[test]
+    fn figures_do_not_depend_on_how_the_stream_is_split() {
+        let x: Vec<f32> = (0..1003).map(|i| ((i * 7919 % 1000) as f32 / 500.0 - 1.0) * 1.1).collect();
+        let mut y = x.clone();
+        y[17] = f32::NAN;
+        y[500] = f32::NEG_INFINITY;
+        let whole = Levels::measure(&[&y]);
+        let mut sq_whole = SqnrAcc::default();
+        sq_whole.push_slices(&x, &y);
+        for split in [1, 3, 7, 8, 9, 64, 333] {
+            let mut acc = LevelsAcc::default();
+            let mut sq = SqnrAcc::default();
+            for (i, (a, b)) in x.chunks(split).zip(y.chunks(split)).enumerate() {
+                acc.push(b);
+                if i % 2 == 0 {
+                    sq.push_slices(a, b);
+                } else {
+                    a.iter().zip(b).for_each(|(&r, &o)| sq.push(r, o));
+                }
+            }
+            assert_eq!(acc.finish(), whole, "split {split}");
+            assert_eq!(sq.db().to_bits(), sq_whole.db().to_bits(), "split {split}");
+        }
+        assert_eq!(whole.non_finite, 2);
+        assert_eq!(whole.samples, 1001);
+    }
+
+    #[test]
+    fn lane_sums_match_a_plain_sum() {
+        // Straight f64 sums of the same samples, as a cross-check of the lane bookkeeping (not bit-exact: the
+        // order of additions differs).
+        let x: Vec<f32> = (0..10_001).map(|i| ((i as f32) * 0.37).sin() * 0.8).collect();
+        let l = Levels::measure(&[&x]);
+        let ms = x.iter().map(|&v| (v as f64).powi(2)).sum::<f64>() / x.len() as f64;
+        let dc = x.iter().map(|&v| v as f64).sum::<f64>() / x.len() as f64;
+        let peak = x.iter().fold(0f32, |m, v| m.max(v.abs())) as f64;
+        assert!((l.rms_dbfs - 10.0 * (2.0 * ms).log10()).abs() < 1e-9, "{l:?}");
+        assert!((l.dc - dc).abs() < 1e-12);
+        assert_eq!(l.peak_dbfs, 20.0 * peak.log10());
     }
 
     #[test]
