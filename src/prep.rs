@@ -900,23 +900,57 @@ pub const MAX_PRE_GAIN_DB: f64 = 60.0;
 pub fn suggest_pre_gain(clip: &Clip, bits: u32, max_clipped: u64) -> f64 {
     let bits = bits.clamp(1, 24);
     let half = libm::ldexp(1.0, -(bits as i32));
-    let mut c: Vec<f64> = clip
-        .channels
-        .iter()
-        .flatten()
-        .map(|&s| sanitize(s) as f64)
-        .filter(|&x| x != 0.0)
-        .map(|x| if x > 0.0 { (1.0 - half) / x } else { (1.0 + half) / -x })
-        .collect();
-    if c.is_empty() {
-        return 0.0;
-    }
-    if (c.len() as u64) <= max_clipped {
-        return MAX_PRE_GAIN_DB;
-    }
-    let m = max_clipped as usize;
-    let (_, &mut critical, _) = c.select_nth_unstable_by(m, f64::total_cmp);
+    let critical_gain = |x: f64| if x > 0.0 { (1.0 - half) / x } else { (1.0 + half) / -x };
+    let samples = || clip.channels.iter().flatten().map(|&s| sanitize(s) as f64).filter(|&x| x != 0.0);
+    let critical = if max_clipped < BOUNDED_SELECT {
+        // The (m + 1) smallest critical gains in a bounded max-heap: one pass, no copy of the clip.
+        let m = max_clipped as usize;
+        let mut heap = std::collections::BinaryHeap::with_capacity(m + 1);
+        for c in samples().map(critical_gain) {
+            if heap.len() <= m {
+                heap.push(TotalF64(c));
+            } else if c < heap.peek().map_or(f64::INFINITY, |t| t.0) {
+                heap.pop();
+                heap.push(TotalF64(c));
+            }
+        }
+        if heap.is_empty() {
+            return 0.0;
+        }
+        if heap.len() <= m {
+            return MAX_PRE_GAIN_DB;
+        }
+        heap.peek().map_or(0.0, |t| t.0)
+    } else {
+        let mut c: Vec<f64> = samples().map(critical_gain).collect();
+        if c.is_empty() {
+            return 0.0;
+        }
+        if (c.len() as u64) <= max_clipped {
+            return MAX_PRE_GAIN_DB;
+        }
+        let (_, &mut critical, _) = c.select_nth_unstable_by(max_clipped as usize, f64::total_cmp);
+        critical
+    };
     (20.0 * libm::log10(critical * (1.0 - 1e-6))).min(MAX_PRE_GAIN_DB)
+}
+
+/// Clip budgets below this select with a bounded heap in one pass; larger ones copy and partially sort.
+const BOUNDED_SELECT: u64 = 4096;
+
+/// An `f64` ordered by [`f64::total_cmp`] (the critical gains are finite and positive).
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct TotalF64(f64);
+impl Eq for TotalF64 {}
+impl PartialOrd for TotalF64 {
+    fn partial_cmp(&self, other: &Self) -> Option<std::cmp::Ordering> {
+        Some(self.cmp(other))
+    }
+}
+impl Ord for TotalF64 {
+    fn cmp(&self, other: &Self) -> std::cmp::Ordering {
+        self.0.total_cmp(&other.0)
+    }
 }
 
 // ---------------------------------------------------------------------------------------------------------------------
@@ -1481,7 +1515,7 @@ mod tests {
         for x in [noise, neg_peak] {
             let c = clip(48_000, vec![x.clone()]);
             for bits in [4, 8, 16, 24] {
-                for max_clipped in [0u64, 1, 5, 100] {
+                for max_clipped in [0u64, 1, 5, 100, BOUNDED_SELECT - 1, BOUNDED_SELECT, 4500] {
                     let g = suggest_pre_gain(&c, bits, max_clipped);
                     let at = quantize_clipped(&x, g, bits);
                     let more = quantize_clipped(&x, g + 0.1, bits);

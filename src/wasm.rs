@@ -11,7 +11,7 @@ use std::borrow::Cow;
 use wasm_bindgen::prelude::*;
 
 /// Most frames a page spectrum averages per channel (spread over the sound), so long files stay quick to redraw.
-const SPECTRUM_FRAMES: usize = 512;
+const SPECTRUM_FRAMES: usize = 256;
 
 fn js_err(e: Error) -> JsError {
     JsError::new(&e.to_string())
@@ -27,6 +27,9 @@ pub struct Session {
     /// The chain input's spectrum for (FFT size, window, preparation): it changes only on load or when the
     /// preparation settings change, yet every render asks for it.
     input_spectrum: Option<(usize, Window, Option<PrepParams>, Vec<f32>)>,
+    /// The latest [`Session::headroom`] answer for (bits, clip budget, preparation): like the input spectrum, it
+    /// changes only with the chain's input.
+    headroom_cache: Option<(u32, u32, Option<PrepParams>, String)>,
     /// The preparation settings of the latest render.
     rendered_prep: PrepParams,
 }
@@ -49,6 +52,7 @@ impl Session {
             render: None,
             analyzer: None,
             input_spectrum: None,
+            headroom_cache: None,
             rendered_prep: PrepParams::default(),
         }
     }
@@ -87,6 +91,7 @@ impl Session {
         self.source = clip;
         self.render = None;
         self.input_spectrum = None;
+        self.headroom_cache = None;
         Ok(self.describe())
     }
 
@@ -215,13 +220,21 @@ impl Session {
     /// Gain staging before a `bits`-bit quantizer, for the chain's input (the prepared sound once rendered): peak,
     /// headroom in dB and in LSB, bits used, and the pre-gain in dB that maximises the SQNR while clipping at most
     /// `max_clipped` samples. JSON: [`crate::prep::Headroom`] plus `suggested_gain_db`.
-    pub fn headroom(&self, bits: u32, max_clipped: u32) -> Result<String, JsError> {
+    pub fn headroom(&mut self, bits: u32, max_clipped: u32) -> Result<String, JsError> {
         crate::error::check_range_u("bits", bits as u64, 1, 24).map_err(js_err)?;
+        let prep = self.render.as_ref().map(|_| self.rendered_prep.clone());
+        if let Some((b, m, p, s)) = &self.headroom_cache {
+            if (*b, *m) == (bits, max_clipped) && *p == prep {
+                return Ok(s.clone());
+            }
+        }
         let clip = self.render.as_ref().map_or(&self.source, |r| r.input(&self.source));
         let mut v =
             serde_json::to_value(crate::prep::headroom(clip, bits)).map_err(|e| JsError::new(&e.to_string()))?;
         v["suggested_gain_db"] = crate::prep::suggest_pre_gain(clip, bits, max_clipped as u64).into();
-        Ok(v.to_string())
+        let s = v.to_string();
+        self.headroom_cache = Some((bits, max_clipped, prep, s.clone()));
+        Ok(s)
     }
 
     /// The usual file extension of the preset's export format (no dot).

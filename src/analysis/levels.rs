@@ -183,6 +183,31 @@ pub fn sqnr_db<A: AsRef<[f32]>, B: AsRef<[f32]>>(reference: &[A], output: &[B]) 
     acc.db()
 }
 
+/// Smallest and largest finite sample (`(+Inf, −Inf)` when there is none), in eight independent lanes with plain
+/// compares: `f32::min`/`max` are calls into the runtime in wasm (their NaN rule is not wasm's), and one running
+/// minimum is a serial chain the compiler cannot split.
+fn finite_min_max(x: &[f32]) -> (f32, f32) {
+    const L: usize = 8;
+    let (mut lo, mut hi) = ([f32::INFINITY; L], [f32::NEG_INFINITY; L]);
+    let mut chunks = x.chunks_exact(L);
+    let step = |lo: &mut f32, hi: &mut f32, s: f32| {
+        let f = s.is_finite();
+        *lo = if f && s < *lo { s } else { *lo };
+        *hi = if f && s > *hi { s } else { *hi };
+    };
+    for c in &mut chunks {
+        for i in 0..L {
+            step(&mut lo[i], &mut hi[i], c[i]);
+        }
+    }
+    for &s in chunks.remainder() {
+        step(&mut lo[0], &mut hi[0], s);
+    }
+    let lo = lo.iter().fold(f32::INFINITY, |m, &v| if v < m { v } else { m });
+    let hi = hi.iter().fold(f32::NEG_INFINITY, |m, &v| if v > m { v } else { m });
+    (lo, hi)
+}
+
 /// Min/max pairs for drawing: `columns` columns over `x[start..end]`, returned as `[min0, max0, min1, max1, …]`.
 /// Columns past the data read 0. Non-finite samples are skipped.
 pub fn envelope(x: &[f32], start: usize, end: usize, columns: usize) -> Vec<f32> {
@@ -196,13 +221,7 @@ pub fn envelope(x: &[f32], start: usize, end: usize, columns: usize) -> Vec<f32>
     for c in 0..columns {
         let a = start + (c as f64 * span) as usize;
         let b = (start + ((c + 1) as f64 * span).ceil() as usize).min(end).max(a + 1).min(end);
-        let (mut lo, mut hi) = (f32::INFINITY, f32::NEG_INFINITY);
-        for &s in &x[a..b] {
-            if s.is_finite() {
-                lo = lo.min(s);
-                hi = hi.max(s);
-            }
-        }
+        let (lo, hi) = finite_min_max(&x[a..b]);
         if lo <= hi {
             out[2 * c] = lo;
             out[2 * c + 1] = hi;
