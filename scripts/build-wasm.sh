@@ -11,7 +11,7 @@ mkdir -p build/wasm
 "$WASM_BINDGEN" --target no-modules --no-typescript --out-dir build/wasm \
   target/wasm-build/wasm32-unknown-unknown/wasm/stairstep.wasm
 "$WASM_OPT" -Os --enable-bulk-memory --enable-nontrapping-float-to-int --enable-sign-ext --enable-mutable-globals \
-  --enable-reference-types --enable-multivalue --enable-simd build/wasm/stairstep_bg.wasm -o build/wasm/stairstep_opt.wasm
+  --enable-reference-types --enable-multivalue build/wasm/stairstep_bg.wasm -o build/wasm/stairstep_opt.wasm
 raw=$(stat -c %s build/wasm/stairstep_opt.wasm)
 gz=$(gzip -9 -c build/wasm/stairstep_opt.wasm | wc -c)
 echo "wasm: build/wasm/stairstep_opt.wasm ($((raw / 1024)) KiB, $((gz / 1024)) KiB gzipped)"

@@ -1044,13 +1044,4 @@ async function main() {
   document.body.dataset.ready = 'true';
 }
 
-// A one-function module using a SIMD instruction: the core is built for WebAssembly SIMD (see DEVELOPERS.md).
-const SIMD_PROBE = new Uint8Array([0, 97, 115, 109, 1, 0, 0, 0, 1, 5, 1, 96, 0, 1, 123, 3, 2, 1, 0, 10, 10, 1, 8, 0, 65, 0,
-  253, 15, 253, 98, 11]);
-
-main().catch((err) => {
-  const simd = typeof WebAssembly === 'object' && WebAssembly.validate(SIMD_PROBE);
-  setStatus(simd ? `Start-up failed: ${err.message}`
-    : 'Start-up failed: this browser lacks WebAssembly SIMD, which the engine needs (Chrome or Edge 91+, Firefox 89+, '
-      + 'Safari 16.4+).', 'error');
-});
+main().catch((err) => setStatus(`Start-up failed: ${err.message}`, 'error'));
