@@ -1,5 +1,5 @@
 // Stairstep crusher: an AudioWorklet module with the DSP core (WebAssembly) inside; needs no other file.
-// stairstep-source-hash: 8bb716e2c88e6e18dfc9beb8ca199853caa1cfcffc7bdd884bae4a4209445884
+// stairstep-source-hash: 0f4c0ccf92da9b42ddcfd066f27da6b2f466c514d08971229422249a6b358f5d
 //   await ctx.audioWorklet.addModule('stairstep-worklet.js');
 //   const node = new AudioWorkletNode(ctx, 'stairstep-crusher', { outputChannelCount: [2],
 //     processorOptions: { preset: 'handheld' } });

@@ -89,7 +89,7 @@ impl SpectrumAnalyzer {
     }
 
     /// Averages at most `n` frames per channel (at least 1): a longer signal is represented by `n` frames spread
-    /// evenly over it instead of every frame, which bounds the cost of a spectrum of a long sound (the page uses 512).
+    /// evenly over it instead of every frame, which bounds the cost of a spectrum of a long sound (the page uses 256).
     pub fn with_max_frames(mut self, n: usize) -> Self {
         self.max_frames = n.max(1);
         self
