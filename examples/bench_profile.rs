@@ -45,6 +45,15 @@ fn main() {
             }
             n * 2
         }
+        "gain" => {
+            let mut g = stairstep::clip::Gain::new(&GainParams { gain_db: 3.0, overflow: Overflow::Clip }).unwrap();
+            let mut buf = clip.channels[0][..chain::BLOCK].to_vec();
+            for _ in 0..reps * 1000 {
+                buf.copy_from_slice(&clip.channels[0][..chain::BLOCK]);
+                g.process(black_box(&mut buf));
+            }
+            chain::BLOCK * 1000
+        }
         "quantize" | "tpdf" => {
             let p = if what == "tpdf" {
                 QuantizeParams { dither: DitherKind::Tpdf, ..QuantizeParams::bits(8) }
@@ -67,7 +76,7 @@ fn main() {
             n * 2
         }
         other => {
-            eprintln!("bench_profile: unknown workload {other:?}: chain, quantize, tpdf, spectrum");
+            eprintln!("bench_profile: unknown workload {other:?}: chain, gain, quantize, tpdf, spectrum");
             std::process::exit(2);
         }
     };

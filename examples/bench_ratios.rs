@@ -551,7 +551,7 @@ fn main() {
             &pair.ratios(false),
             "numpy time / native time",
             None,
-            "same frames and window; native: complex rustfft, numpy: rfft (pocketfft, float32)",
+            "same frames and window; native: realfft (real-input FFT on rustfft), numpy: rfft (pocketfft, float32)",
         );
         let v = p.ask("spectrum_values");
         let db: Vec<f64> = v["db"].as_array().expect("values").iter().filter_map(Value::as_f64).collect();
