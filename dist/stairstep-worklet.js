@@ -1,5 +1,5 @@
 // Stairstep crusher: an AudioWorklet module with the DSP core (WebAssembly) inside; needs no other file.
-// stairstep-source-hash: 0f4c0ccf92da9b42ddcfd066f27da6b2f466c514d08971229422249a6b358f5d
+// stairstep-source-hash: 9ed694cd8a8e301ee4aefde5766dd7c16082a9a5730736cc4a280bb8144039a6
 //   await ctx.audioWorklet.addModule('stairstep-worklet.js');
 //   const node = new AudioWorkletNode(ctx, 'stairstep-crusher', { outputChannelCount: [2],
 //     processorOptions: { preset: 'handheld' } });

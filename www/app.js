@@ -557,35 +557,42 @@ function drawWave() {
     g.fillStyle = css('--loop');
     g.fillRect(x0, 0, x1 - x0, h);
   }
-  g.strokeStyle = css('--grid');
-  g.beginPath(); g.moveTo(0, h / 2); g.lineTo(w, h / 2); g.stroke();
-  const drawEnv = (env, color) => {
-    const n = env.length / 2;
-    g.fillStyle = color;
-    for (let i = 0; i < n; i++) {
-      const x = (i / n) * w;
-      const y0 = h / 2 - env[2 * i + 1] * (h / 2 - 2);
-      const y1 = h / 2 - env[2 * i] * (h / 2 - 2);
-      g.fillRect(x, y0, Math.max(1, w / n), Math.max(1, y1 - y0));
-    }
-  };
-  // Processed filled, original as its outline on top, so both stay visible where they differ.
-  drawEnv(state.env.output, css('--processed'));
-  const outline = (env) => {
-    const n = env.length / 2;
-    g.strokeStyle = css('--original');
+  // One lane per channel (stacked, top to bottom), processed filled, original as its outline on top, so both stay
+  // visible where they differ.
+  const lanes = state.env.output.length;
+  const laneH = h / lanes;
+  for (let c = 0; c < lanes; c++) {
+    const mid = laneH * (c + 0.5);
+    const amp = laneH / 2 - 2;
+    g.strokeStyle = css('--grid');
     g.lineWidth = 1;
+    g.beginPath(); g.moveTo(0, mid); g.lineTo(w, mid); g.stroke();
+    if (c) { g.beginPath(); g.moveTo(0, laneH * c); g.lineTo(w, laneH * c); g.stroke(); }
+    const out = state.env.output[c];
+    const n = out.length / 2;
+    g.fillStyle = css('--processed');
+    for (let i = 0; i < n; i++) {
+      const y0 = mid - out[2 * i + 1] * amp;
+      const y1 = mid - out[2 * i] * amp;
+      g.fillRect((i / n) * w, y0, Math.max(1, w / n), Math.max(1, y1 - y0));
+    }
+    const inp = state.env.input[c];
+    g.strokeStyle = css('--original');
     for (const k of [1, 0]) {
       g.beginPath();
       for (let i = 0; i < n; i++) {
         const px = (i / n) * w;
-        const py = h / 2 - env[2 * i + k] * (h / 2 - 2);
+        const py = mid - inp[2 * i + k] * amp;
         if (i) g.lineTo(px, py); else g.moveTo(px, py);
       }
       g.stroke();
     }
-  };
-  outline(state.env.input);
+    if (lanes > 1) {
+      g.fillStyle = css('--fg');
+      g.font = '11px system-ui, sans-serif';
+      g.fillText(lanes === 2 ? ['L', 'R'][c] : String(c + 1), 4, laneH * c + 13);
+    }
+  }
   // Preparation on the waveform: the fades as gain ramps along the top, the exported loop as two markers.
   const prep = state.preset.prep ?? {};
   const rate = state.info.sampleRate;
@@ -783,7 +790,8 @@ function setupViews() {
 
 function refreshEnvelope() {
   if (!state.report) return;
-  call('envelope', { view: { ...viewRange(), columns: waveColumns() } }).then((msg) => { state.env = msg.env; drawWave(); })
+  call('envelope', { view: { ...viewRange(), columns: waveColumns() }, channels: state.report.channels })
+    .then((msg) => { state.env = msg.env; drawWave(); })
     .catch(() => {});
 }
 

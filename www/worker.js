@@ -16,6 +16,18 @@ function describe(info) {
   return { info: d, input };
 }
 
+// Min/max envelopes of the chain's input and output for the waveform: one per channel, at most MAX_WAVE_LANES.
+const MAX_WAVE_LANES = 8;
+function envelopes(v, channels) {
+  const n = Math.max(1, Math.min(channels, MAX_WAVE_LANES));
+  const env = { input: [], output: [] };
+  for (let c = 0; c < n; c++) {
+    env.input.push(session.envelope('input', c, v.start, v.end, v.columns));
+    env.output.push(session.envelope('output', c, v.start, v.end, v.columns));
+  }
+  return env;
+}
+
 const handlers = {
   init(msg) {
     initSync({ module: msg.wasm });
@@ -39,10 +51,7 @@ const handlers = {
     const v = msg.view;
     const spectra = {};
     for (const which of ['input', 'output', 'error']) spectra[which] = session.spectrum(which, v.fftSize, v.window);
-    const env = {
-      input: session.envelope('input', 0, v.start, v.end, v.columns),
-      output: session.envelope('output', 0, v.start, v.end, v.columns),
-    };
+    const env = envelopes(v, report.channels);
     const output = [];
     for (let c = 0; c < report.channels; c++) output.push(session.samples('output', c));
     // With asset preparation the chain's input differs from the loaded sound: send it, for the error signal.
@@ -53,7 +62,7 @@ const handlers = {
     let file = null;
     if (msg.withFile) file = session.exportFile();
     const ms = performance.now() - t0;
-    const transfer = [...Object.values(spectra), ...Object.values(env), ...output, ...reference].map((a) => a.buffer);
+    const transfer = [...Object.values(spectra), ...env.input, ...env.output, ...output, ...reference].map((a) => a.buffer);
     if (file) transfer.push(file.buffer);
     reply('rendered', { id: msg.id, report, headroom, spectra, env, output, reference, file, ms }, transfer);
   },
@@ -67,12 +76,8 @@ const handlers = {
   },
 
   envelope(msg) {
-    const v = msg.view;
-    const env = {
-      input: session.envelope('input', 0, v.start, v.end, v.columns),
-      output: session.envelope('output', 0, v.start, v.end, v.columns),
-    };
-    reply('envelope', { id: msg.id, env }, [env.input.buffer, env.output.buffer]);
+    const env = envelopes(msg.view, msg.channels);
+    reply('envelope', { id: msg.id, env }, [...env.input, ...env.output].map((a) => a.buffer));
   },
 
   export(msg) {

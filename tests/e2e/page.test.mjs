@@ -40,6 +40,25 @@ test('a WAV file loads through the file picker', async () => {
   assert.match(await s.page.textContent('#source-info'), /stereo, 22,050 Hz/);
 });
 
+test('the waveform has one lane per channel of what the chain sees', async () => {
+  // The stereo fixture (left and right differ), then the same folded to mono by the preparation.
+  await afterRender(s.page, () => s.page.setInputFiles('#file', fixture));
+  await usePreset({ format: 'stairstep-preset', version: 1, name: 'lanes', stages: [{ kind: 'quantize', bits: 8 }] });
+  const env = () => s.page.evaluate(() => ({
+    input: window.stairstep.env.input.map((e) => Array.from(e)),
+    output: window.stairstep.env.output.map((e) => Array.from(e)),
+  }));
+  const stereo = await env();
+  assert.equal(stereo.output.length, 2);
+  assert.equal(stereo.input.length, 2);
+  assert.notDeepEqual(stereo.output[0], stereo.output[1], 'left and right lanes show their own channel');
+  await usePreset({ format: 'stairstep-preset', version: 1, name: 'lanes-mono', prep: { channels: { mono: 'sum-3db' } },
+    stages: [{ kind: 'quantize', bits: 8 }] });
+  const mono = await env();
+  assert.equal(mono.output.length, 1);
+  assert.equal(mono.input.length, 1);
+});
+
 test('bit depth and sample rate change the spectrum and the SQNR readout', async () => {
   await afterRender(s.page, () => s.page.selectOption('#demo', 'pad'));
   await usePreset({ format: 'stairstep-preset', version: 1, name: 'edit', stages: [
