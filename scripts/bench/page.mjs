@@ -9,7 +9,7 @@
 // bytes (the page keeps its worker private to its module) and speaks the page's worker protocol to it: `init`, one
 // `load` of a synthetic stereo 48 kHz clip (sampleRate/channels/interleaved), then `render` requests with the page's
 // view (whole clip, 1,200 columns, 4096-point Hann). A render is what the page does on every edit: the chain with
-// its report, three spectra (input, output, error), two envelopes and the output channels, transferred back. Each
+// its report, three spectra (input, output, error), input and output envelopes per channel and the output channels, transferred back. Each
 // round times postMessage('render') until 'rendered' arrives on the page's thread. Reports the real-time factor
 // (clip seconds / render seconds); asserts nothing about time.
 import { readFileSync, appendFileSync } from 'node:fs';
@@ -86,7 +86,7 @@ try {
   const rtf = result.wall.map((ms) => seconds / (ms / 1000));
   const version = browser.version();
   const row = {
-    what: `page re-render of ${seconds} s stereo 48 kHz in headless Chromium (chain + 3 spectra + 2 envelopes)`,
+    what: `page re-render of ${seconds} s stereo 48 kHz in headless Chromium (chain + 3 spectra + envelopes per channel)`,
     ours: `${wallMed.toFixed(1)} ms per render (worker's own ${median(result.worker_ms).toFixed(1)} ms)`,
     reference: `${seconds} s of audio`,
     ratio: seconds / (wallMed / 1000),
