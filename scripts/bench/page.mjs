@@ -9,8 +9,8 @@
 // bytes (the page keeps its worker private to its module) and speaks the page's worker protocol to it: `init`, one
 // `load` of a synthetic stereo 48 kHz clip (sampleRate/channels/interleaved), then `render` requests with the page's
 // view (whole clip, 1,200 columns, 4096-point Hann). A render is what the page does on every edit: the chain with
-// its report, three spectra (input, output, error), input and output envelopes per channel and the output channels, transferred back. Each
-// round times postMessage('render') until 'rendered' arrives on the page's thread. Reports the real-time factor
+// its report, three spectra (input, output, error), input and output envelopes per channel and the output channels,
+// transferred back. Each round times postMessage('render') until 'rendered' arrives on the page's thread. Reports the real-time factor
 // (clip seconds / render seconds); asserts nothing about time.
 import { readFileSync, appendFileSync } from 'node:fs';
 import { join, resolve } from 'node:path';
