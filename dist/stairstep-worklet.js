@@ -1,5 +1,5 @@
 // Stairstep crusher: an AudioWorklet module with the DSP core (WebAssembly) inside; needs no other file.
-// stairstep-source-hash: 9ed694cd8a8e301ee4aefde5766dd7c16082a9a5730736cc4a280bb8144039a6
+// stairstep-source-hash: bebc630ffba26f5bff72c8e903effe1e4d1869a9f48eee149cbc125b190c8c18
 //   await ctx.audioWorklet.addModule('stairstep-worklet.js');
 //   const node = new AudioWorkletNode(ctx, 'stairstep-crusher', { outputChannelCount: [2],
 //     processorOptions: { preset: 'handheld' } });

@@ -691,6 +691,10 @@ function drawMeters() {
     el('div', { class: 'meter', title: r.theory_note ?? 'formula for this chain' }, el('span', {}, 'Theory'),
       el('b', {}, r.theory_sqnr_db === null || r.theory_sqnr_db === undefined ? 'n/a' : fmtDb(r.theory_sqnr_db))),
     m('Rate', `${r.export_rate.toLocaleString('en')} Hz`),
+    // What the export costs, always in view (the export panel has the exact figures).
+    el('div', { class: 'meter', id: 'meter-file',
+      title: `${r.export_bytes.toLocaleString('en')} bytes, ${fmtBytes(Math.round(r.export_bytes_per_second))}/s` },
+    el('span', {}, 'File'), el('b', {}, fmtBytes(r.export_bytes))),
   );
 }
 

@@ -142,6 +142,8 @@ test('the downloaded export equals `stairstep render` of the same preset on the 
     const a = readFileSync(pagePath);
     const b = readFileSync(cliPath);
     assert.equal(a.length, (await report()).export_bytes, 'the budget is the exact size');
+    const fileMeter = await page.getAttribute('#meter-file', 'title');
+    assert.ok(fileMeter.startsWith(`${a.length.toLocaleString('en')} bytes`), `File meter: ${fileMeter}`);
     assert.ok(a.equals(b), `${JSON.stringify(exp)}: page ${a.length} bytes, CLI ${b.length} bytes differ`);
   }
 });
