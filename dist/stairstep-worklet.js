@@ -1,5 +1,5 @@
 // Stairstep crusher: an AudioWorklet module with the DSP core (WebAssembly) inside; needs no other file.
-// stairstep-source-hash: bebc630ffba26f5bff72c8e903effe1e4d1869a9f48eee149cbc125b190c8c18
+// stairstep-source-hash: 14dcb0c80ebc79983602a92e2a33702bf58033173edccc01f90757385e8c741a
 //   await ctx.audioWorklet.addModule('stairstep-worklet.js');
 //   const node = new AudioWorkletNode(ctx, 'stairstep-crusher', { outputChannelCount: [2],
 //     processorOptions: { preset: 'handheld' } });

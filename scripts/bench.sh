@@ -72,7 +72,8 @@ if [ "$CRITERION" = 1 ]; then
 fi
 step "build: wasm core (scripts/build-wasm.sh, unless build/wasm is newer than the sources)"
 if [ -f build/wasm/stairstep_opt.wasm ] && [ -f build/wasm/stairstep.js ] &&
-   [ -z "$(find src Cargo.toml Cargo.lock -newer build/wasm/stairstep_opt.wasm -print -quit)" ]; then
+   [ -z "$(find src Cargo.toml Cargo.lock scripts/build-wasm.sh $(ls -d .cargo 2>/dev/null) \
+     -newer build/wasm/stairstep_opt.wasm -print -quit)" ]; then
   echo "  build/wasm is up to date" >&2
 else
   bash scripts/build-wasm.sh >&2

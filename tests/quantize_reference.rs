@@ -152,6 +152,35 @@ fn block_paths_equal_per_sample_path_over_all_exponents() {
     }
 }
 
+/// Long blocks (across the dither path's 1,024-sample chunks and the f32 path's 65,536-sample counter chunks, in
+/// odd sizes) give exactly the per-sample results, for every dither kind, with and without power-of-two steps.
+#[test]
+fn long_blocks_equal_per_sample_path() {
+    let mut rng = stairstep::rng::Pcg32::from_seed(5, 9);
+    let xs: Vec<f32> = (0..140_001).map(|_| (rng.uniform_centered() * 2.4) as f32).collect();
+    for dither in [DitherKind::None, DitherKind::Rpdf, DitherKind::Tpdf, DitherKind::HighpassTpdf] {
+        for p in [
+            QuantizeParams { bits: 8, dither, ..Default::default() },
+            QuantizeParams { bits: 12, rounding: Rounding::Truncate, dither, ..Default::default() },
+            QuantizeParams { levels: Some(37), dither, ..Default::default() },
+        ] {
+            let (mut fast, mut slow) = (Quantizer::new(&p, 3, 2).unwrap(), Quantizer::new(&p, 3, 2).unwrap());
+            let mut a = xs.clone();
+            let mut at = 0;
+            for len in [1, 1023, 1025, 70_000, 67_952] {
+                fast.process(&mut a[at..at + len]);
+                at += len;
+            }
+            assert_eq!(at, xs.len());
+            for (i, (&x, &y)) in xs.iter().zip(&a).enumerate() {
+                assert_eq!(y.to_bits(), slow.quantize_sample(x).to_bits(), "{p:?}: sample {i}");
+            }
+            assert_eq!(fast.clipped(), slow.clipped(), "{p:?}");
+            assert!(fast.clipped() > 0, "the input reaches beyond full scale");
+        }
+    }
+}
+
 fn any_params() -> impl Strategy<Value = QuantizeParams> {
     (
         1u32..=24,

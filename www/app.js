@@ -545,7 +545,7 @@ function viewRange() { return { start: state.view.start, end: state.view.end || 
 
 function drawWave() {
   const c = $('wave');
-  const { w, h } = fitCanvas(c);
+  const { w, h, dpr } = fitCanvas(c);
   const g = c.getContext('2d');
   g.fillStyle = css('--plot-bg');
   g.fillRect(0, 0, w, h);
@@ -589,8 +589,8 @@ function drawWave() {
     }
     if (lanes > 1) {
       g.fillStyle = css('--fg');
-      g.font = '11px system-ui, sans-serif';
-      g.fillText(lanes === 2 ? ['L', 'R'][c] : String(c + 1), 4, laneH * c + 13);
+      g.font = `${11 * dpr}px system-ui, sans-serif`;
+      g.fillText(lanes === 2 ? ['L', 'R'][c] : String(c + 1), 4 * dpr, laneH * c + 13 * dpr);
     }
   }
   // Preparation on the waveform: the fades as gain ramps along the top, the exported loop as two markers.
@@ -794,8 +794,7 @@ function setupViews() {
 
 function refreshEnvelope() {
   if (!state.report) return;
-  call('envelope', { view: { ...viewRange(), columns: waveColumns() }, channels: state.report.channels })
-    .then((msg) => { state.env = msg.env; drawWave(); })
+  call('envelope', { view: { ...viewRange(), columns: waveColumns() } }).then((msg) => { state.env = msg.env; drawWave(); })
     .catch(() => {});
 }
 

@@ -16,10 +16,13 @@ function describe(info) {
   return { info: d, input };
 }
 
-// Min/max envelopes of the chain's input and output for the waveform: one per channel, at most MAX_WAVE_LANES.
+// Min/max envelopes of the chain's input and output for the waveform: one per channel of the latest render (the
+// worker's own count, so that a zoom sent while a render that changes it is under way cannot mismatch), at most
+// MAX_WAVE_LANES.
 const MAX_WAVE_LANES = 8;
-function envelopes(v, channels) {
-  const n = Math.max(1, Math.min(channels, MAX_WAVE_LANES));
+let renderedChannels = 1;
+function envelopes(v) {
+  const n = Math.max(1, Math.min(renderedChannels, MAX_WAVE_LANES));
   const env = { input: [], output: [] };
   for (let c = 0; c < n; c++) {
     env.input.push(session.envelope('input', c, v.start, v.end, v.columns));
@@ -51,7 +54,8 @@ const handlers = {
     const v = msg.view;
     const spectra = {};
     for (const which of ['input', 'output', 'error']) spectra[which] = session.spectrum(which, v.fftSize, v.window);
-    const env = envelopes(v, report.channels);
+    renderedChannels = report.channels;
+    const env = envelopes(v);
     const output = [];
     for (let c = 0; c < report.channels; c++) output.push(session.samples('output', c));
     // With asset preparation the chain's input differs from the loaded sound: send it, for the error signal.
@@ -76,7 +80,7 @@ const handlers = {
   },
 
   envelope(msg) {
-    const env = envelopes(msg.view, msg.channels);
+    const env = envelopes(msg.view);
     reply('envelope', { id: msg.id, env }, [...env.input, ...env.output].map((a) => a.buffer));
   },
 
