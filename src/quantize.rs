@@ -122,11 +122,11 @@ pub struct Quantizer {
     dither: Dither,
     shaper: NoiseShaper,
     clipped: u64,
-    /// Dither values for the block being processed (allocated once, here, never in `process`).
+    /// Dither values (zeros without dither) for the chunk being processed (allocated once, here, never in `process`).
     scratch: Vec<f64>,
 }
 
-/// Samples the dithered block path handles at a time (the size of [`Quantizer`]'s dither buffer).
+/// Samples the `f64` block path handles at a time (the size of [`Quantizer`]'s dither buffer).
 const DITHER_CHUNK: usize = 1024;
 
 impl Quantizer {
@@ -156,7 +156,7 @@ impl Quantizer {
             dither,
             shaper,
             clipped: 0,
-            scratch: if params.dither == DitherKind::None { Vec::new() } else { vec![0.0; DITHER_CHUNK] },
+            scratch: vec![0.0; DITHER_CHUNK],
         })
     }
 
@@ -207,54 +207,36 @@ impl Quantizer {
             return;
         }
         let (inv, off, step, kmin, kmax) = (self.inv_step, self.offset, self.step, self.kmin, self.kmax);
-        self.clipped += match (self.dither.kind(), self.truncate) {
-            (DitherKind::None, truncate) => match self.exact_f32() {
-                // One loop per rounding rule, so that each is a straight-line loop the compiler vectorizes.
-                Some(scale) if truncate => quantize_pow2_f32(buf, scale, kmin as f32, kmax as f32, true),
-                Some(scale) => quantize_pow2_f32(buf, scale, kmin as f32, kmax as f32, false),
-                None => {
-                    let quantize = |buf: &mut [f32], truncate: bool| {
-                        let mut clipped = 0u64;
-                        for s in buf.iter_mut() {
-                            let x = if s.is_nan() { 0.0 } else { *s as f64 };
-                            let t = x * inv - off;
-                            let k = round_clamped(t, kmin - 1.0, kmax + 1.0, truncate);
-                            clipped += (k > kmax || k < kmin) as u64;
-                            *s = ((k.clamp(kmin, kmax) + off) * step) as f32;
-                        }
-                        clipped
-                    };
-                    if truncate {
-                        quantize(buf, true)
-                    } else {
-                        quantize(buf, false)
-                    }
-                }
-            },
-            (_, truncate) => {
-                // Dither without noise shaping: the generator's values for a chunk first (a loop with nothing but
-                // the generator's serial state in it), then a straight-line loop the compiler vectorizes.
-                let (dither, scratch) = (&mut self.dither, &mut self.scratch);
-                let run = |buf: &mut [f32], d: &[f64], truncate: bool| {
-                    let mut clipped = 0u64;
-                    for (s, &d) in buf.iter_mut().zip(d) {
-                        let x = if s.is_nan() { 0.0 } else { *s as f64 };
-                        let t = (x * inv - off) + d;
-                        let k = round_clamped(t, kmin - 1.0, kmax + 1.0, truncate);
-                        clipped += (k > kmax || k < kmin) as u64;
-                        *s = ((k.clamp(kmin, kmax) + off) * step) as f32;
-                    }
-                    clipped
+        if self.dither.kind() == DitherKind::None {
+            if let Some(scale) = self.exact_f32() {
+                // One call per rounding rule, so that each is a straight-line loop the compiler vectorizes.
+                self.clipped += if self.truncate {
+                    quantize_pow2_f32(buf, scale, kmin as f32, kmax as f32, true)
+                } else {
+                    quantize_pow2_f32(buf, scale, kmin as f32, kmax as f32, false)
                 };
-                let mut clipped = 0;
-                for chunk in buf.chunks_mut(DITHER_CHUNK) {
-                    let d = &mut scratch[..chunk.len()];
-                    dither.fill(d);
-                    clipped += if truncate { run(chunk, d, true) } else { run(chunk, d, false) };
-                }
-                clipped
+                return;
             }
+        }
+        // Without noise shaping the dither generator is the only state: its values for a chunk first (a loop with
+        // nothing but the generator's serial state in it; zeros without dither, which leave every level as it is),
+        // then a straight-line loop the compiler vectorizes.
+        let run = |buf: &mut [f32], d: &[f64], truncate: bool| {
+            let mut clipped = 0u64;
+            for (s, &d) in buf.iter_mut().zip(d) {
+                let x = if s.is_nan() { 0.0 } else { *s as f64 };
+                let t = (x * inv - off) + d;
+                let k = round_clamped(t, kmin - 1.0, kmax + 1.0, truncate);
+                clipped += (k > kmax || k < kmin) as u64;
+                *s = ((k.clamp(kmin, kmax) + off) * step) as f32;
+            }
+            clipped
         };
+        for chunk in buf.chunks_mut(DITHER_CHUNK) {
+            let d = &mut self.scratch[..chunk.len()];
+            self.dither.fill(d);
+            self.clipped += if self.truncate { run(chunk, d, true) } else { run(chunk, d, false) };
+        }
     }
 
     /// `Some(2^(N−1))` when this quantizer can run in `f32` with the very same results as in `f64`: a power-of-two
