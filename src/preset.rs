@@ -114,6 +114,11 @@ impl Default for Preset {
 }
 
 impl Preset {
+    /// The stages that are not bypassed, in chain order.
+    pub fn active_stages(&self) -> impl Iterator<Item = &StageSpec> {
+        self.stages.iter().filter(|s| !s.bypass).map(|s| &s.stage)
+    }
+
     /// A preset with these stages and default everything else.
     pub fn with_stages(name: &str, stages: Vec<StageSpec>) -> Self {
         Preset { name: name.into(), stages: stages.into_iter().map(Into::into).collect(), ..Default::default() }

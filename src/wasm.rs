@@ -24,13 +24,13 @@ pub struct Session {
     preset: Preset,
     render: Option<Render>,
     analyzer: Option<SpectrumAnalyzer>,
-    /// The chain input's spectrum for (FFT size, window, preparation): it changes only on load or when the
-    /// preparation settings change, yet every render asks for it.
-    input_spectrum: Option<(usize, Window, Option<PrepParams>, Vec<f32>)>,
-    /// The latest [`Session::headroom`] answer for (bits, clip budget, preparation): like the input spectrum, it
-    /// changes only with the chain's input.
-    headroom_cache: Option<(u32, u32, Option<PrepParams>, String)>,
-    /// The preparation settings of the latest render.
+    /// The chain input's spectrum for (FFT size, window), and the latest [`Session::headroom`] answer for (bits, clip
+    /// budget): every render asks for them, yet they change only with the chain's input, so they are kept until
+    /// [`Session::input_changed`] drops them.
+    input_spectrum: Option<(usize, Window, Vec<f32>)>,
+    headroom_cache: Option<(u32, u32, String)>,
+    /// The preparation the chain's input was made with (the default, a no-op, before any render: the input is then
+    /// the loaded sound).
     rendered_prep: PrepParams,
 }
 
@@ -92,8 +92,8 @@ impl Session {
     fn set_source(&mut self, clip: Clip) -> Result<String, JsError> {
         self.source = clip;
         self.render = None;
-        self.input_spectrum = None;
-        self.headroom_cache = None;
+        self.rendered_prep = PrepParams::default();
+        self.input_changed();
         Ok(self.describe())
     }
 
@@ -134,7 +134,10 @@ impl Session {
         v["prep"] = serde_json::to_value(&r.prep).unwrap_or_default();
         v["export_loop"] = serde_json::to_value(r.export_meta.loops.first()).unwrap_or_default();
         self.render = Some(r);
-        self.rendered_prep = self.preset.prep.clone();
+        if self.rendered_prep != self.preset.prep {
+            self.rendered_prep = self.preset.prep.clone();
+            self.input_changed();
+        }
         Ok(v.to_string())
     }
 
@@ -173,11 +176,9 @@ impl Session {
     pub fn spectrum(&mut self, which: &str, fft_size: usize, window: &str) -> Result<Vec<f32>, JsError> {
         let window: Window =
             serde_json::from_value(window.into()).map_err(|_| JsError::new(&format!("unknown window {window:?}")))?;
-        // The prepared input depends on the preparation of the render that made it (none before a render).
-        let prep = self.render.as_ref().map(|_| self.rendered_prep.clone());
         if which == "input" {
-            if let Some((size, w, p, s)) = &self.input_spectrum {
-                if *size == fft_size && *w == window && *p == prep {
+            if let Some((size, w, s)) = &self.input_spectrum {
+                if *size == fft_size && *w == window {
                     return Ok(s.clone());
                 }
             }
@@ -192,7 +193,7 @@ impl Session {
         drop(chans);
         self.analyzer = Some(a);
         if which == "input" {
-            self.input_spectrum = Some((fft_size, window, prep, out.clone()));
+            self.input_spectrum = Some((fft_size, window, out.clone()));
         }
         Ok(out)
     }
@@ -224,9 +225,8 @@ impl Session {
     /// `max_clipped` samples. JSON: [`crate::prep::Headroom`] plus `suggested_gain_db`.
     pub fn headroom(&mut self, bits: u32, max_clipped: u32) -> Result<String, JsError> {
         crate::error::check_range_u("bits", bits as u64, 1, 24).map_err(js_err)?;
-        let prep = self.render.as_ref().map(|_| self.rendered_prep.clone());
-        if let Some((b, m, p, s)) = &self.headroom_cache {
-            if (*b, *m) == (bits, max_clipped) && *p == prep {
+        if let Some((b, m, s)) = &self.headroom_cache {
+            if (*b, *m) == (bits, max_clipped) {
                 return Ok(s.clone());
             }
         }
@@ -235,7 +235,7 @@ impl Session {
             serde_json::to_value(crate::prep::headroom(clip, bits)).map_err(|e| JsError::new(&e.to_string()))?;
         v["suggested_gain_db"] = crate::prep::suggest_pre_gain(clip, bits, max_clipped as u64).into();
         let s = v.to_string();
-        self.headroom_cache = Some((bits, max_clipped, prep, s.clone()));
+        self.headroom_cache = Some((bits, max_clipped, s.clone()));
         Ok(s)
     }
 
@@ -250,6 +250,15 @@ impl Session {
     pub fn export_file(&self) -> Result<Vec<u8>, JsError> {
         let r = self.render.as_ref().ok_or_else(|| JsError::new("nothing rendered yet"))?;
         r.encode(&self.preset.export).map_err(js_err)
+    }
+}
+
+impl Session {
+    /// The chain's input changed (a new sound, or a render with other preparation settings): drops what was kept
+    /// for it.
+    fn input_changed(&mut self) {
+        self.input_spectrum = None;
+        self.headroom_cache = None;
     }
 }
 
@@ -595,12 +604,9 @@ impl LiveChain {
         let want = self.key_for(&self.base);
         let slot = match self.queued.take() {
             Some(q) if q.key == want => q,
-            Some(_) => match live::Slot::build(&self.base, want, self.channels, self.sample_rate) {
-                Ok(s) => s,
-                Err(e) => return self.rebuild_failed(want, e),
-            },
             None if want == self.current.key || self.failed == Some(want) => return,
-            None => match live::Slot::build(&self.base, want, self.channels, self.sample_rate) {
+            // A queued preset built for other live settings, or new live settings: build for what is wanted now.
+            _ => match live::Slot::build(&self.base, want, self.channels, self.sample_rate) {
                 Ok(s) => s,
                 Err(e) => return self.rebuild_failed(want, e),
             },
@@ -688,14 +694,14 @@ mod live {
     }
 
     fn first_quantize(p: &Preset) -> Option<&crate::quantize::QuantizeParams> {
-        p.stages.iter().filter(|s| !s.bypass).find_map(|s| match &s.stage {
+        p.active_stages().find_map(|s| match s {
             StageSpec::Quantize(q) => Some(q),
             _ => None,
         })
     }
 
     fn first_hold_rate(p: &Preset) -> Option<&crate::rate::RateParams> {
-        p.stages.iter().filter(|s| !s.bypass).find_map(|s| match &s.stage {
+        p.active_stages().find_map(|s| match s {
             StageSpec::Rate(r) if r.mode == RateMode::Hold => Some(r),
             _ => None,
         })
@@ -817,7 +823,7 @@ mod live {
             let preset = key.apply(base);
             let chain = Chain::new(&preset, channels, rate, UNBOUNDED)?;
             // The most one block can produce, and the latency (see LiveChain's docs), from the rate stage.
-            let rate_stage = preset.stages.iter().filter(|s| !s.bypass).find_map(|s| match &s.stage {
+            let rate_stage = preset.active_stages().find_map(|s| match s {
                 StageSpec::Rate(r) => Some(r),
                 _ => None,
             });
