@@ -181,7 +181,7 @@ function requestRender() {
       state.spectra = msg.spectra;
       state.env = msg.env;
       state.output = msg.output;
-      state.reference = msg.reference.length ? msg.reference : null;
+      if (!msg.referenceSame) state.reference = msg.reference.length ? msg.reference : null;
       state.errorSignal = null;
       state.renderMs = msg.ms;
       markStageErrors(null);

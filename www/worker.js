@@ -21,6 +21,8 @@ function describe(info) {
 // MAX_WAVE_LANES.
 const MAX_WAVE_LANES = 8;
 let renderedChannels = 1;
+// The preparation (as JSON) of the chain input the page last received, so that it is sent once, not on every render.
+let referenceFor = null;
 function envelopes(v) {
   const n = Math.max(1, Math.min(renderedChannels, MAX_WAVE_LANES));
   const env = { input: [], output: [] };
@@ -44,6 +46,7 @@ const handlers = {
     else if (msg.wav) info = session.loadWav(new Uint8Array(msg.wav));
     else info = session.loadSamples(msg.sampleRate, msg.channels, msg.interleaved);
     const d = describe(info);
+    referenceFor = null;
     reply('loaded', { id: msg.id, ...d, name: msg.name }, d.input.map((a) => a.buffer));
   },
 
@@ -58,17 +61,22 @@ const handlers = {
     const env = envelopes(v);
     const output = [];
     for (let c = 0; c < report.channels; c++) output.push(session.samples('output', c));
-    // With asset preparation the chain's input differs from the loaded sound: send it, for the error signal.
+    // With asset preparation the chain's input differs from the loaded sound: send it, for the error signal, when
+    // the preparation changed since the page last got it.
+    const preset = JSON.parse(msg.preset);
+    const prepKey = report.prep ? JSON.stringify(preset.prep) : null;
+    const referenceSame = prepKey !== null && prepKey === referenceFor;
     const reference = [];
-    if (report.prep) for (let c = 0; c < report.channels; c++) reference.push(session.samples('input', c));
-    const q = JSON.parse(msg.preset).stages.find((st) => st.kind === 'quantize' && !st.bypass && !st.levels);
+    if (report.prep && !referenceSame) for (let c = 0; c < report.channels; c++) reference.push(session.samples('input', c));
+    referenceFor = prepKey;
+    const q = preset.stages.find((st) => st.kind === 'quantize' && !st.bypass && !st.levels);
     const headroom = JSON.parse(session.headroom(q ? (q.bits ?? 8) : 16, 0));
     let file = null;
     if (msg.withFile) file = session.exportFile();
     const ms = performance.now() - t0;
     const transfer = [...Object.values(spectra), ...env.input, ...env.output, ...output, ...reference].map((a) => a.buffer);
     if (file) transfer.push(file.buffer);
-    reply('rendered', { id: msg.id, report, headroom, spectra, env, output, reference, file, ms }, transfer);
+    reply('rendered', { id: msg.id, report, headroom, spectra, env, output, reference, referenceSame, file, ms }, transfer);
   },
 
   normalize(msg) {
