@@ -6,21 +6,23 @@
 //! cargo bench --bench core -- --quick           # a fast, rough pass
 //! ```
 //!
-//! Every stage is fed one chain block ([`chain::BLOCK`] samples) of the `pad` demo (dense harmonics, around −10 dBFS)
+//! Every stage is fed one chain block ([`stages::BLOCK`] samples) of the `pad` demo (dense harmonics, around −10 dBFS)
 //! at a time, as the chain does; throughput is in input samples. `make bench` runs these with short times after its
 //! ratio table (scripts/bench.sh). Nothing here asserts a time.
 
 use criterion::{criterion_group, criterion_main, BenchmarkId, Criterion, Throughput};
-use stairstep::adpcm::{AdpcmParams, AdpcmRoundTrip};
 use stairstep::analysis::{envelope, Levels, SpectrumAnalyzer, Window};
-use stairstep::chain::{self, Stage};
-use stairstep::clip::{Gain, GainParams, Overflow};
-use stairstep::companding::{CompandParams, Compander, G711Params, G711};
-use stairstep::dither::{DitherKind, Shaping};
-use stairstep::minifloat::{Minifloat, MinifloatParams};
-use stairstep::preset::{Preset, StageSpec};
-use stairstep::quantize::{QuantizeParams, Quantizer};
-use stairstep::rate::{RateExpander, RateParams, RateReducer};
+use stairstep::preset::Preset;
+use stairstep::stages::adpcm::{AdpcmParams, AdpcmRoundTrip};
+use stairstep::stages::compand::{CompandParams, Compander};
+use stairstep::stages::dither::{DitherKind, Shaping};
+use stairstep::stages::g711::{G711Params, G711};
+use stairstep::stages::gain::{Gain, GainParams, Overflow};
+use stairstep::stages::minifloat::{Minifloat, MinifloatParams};
+use stairstep::stages::quantize::{QuantizeParams, Quantizer};
+use stairstep::stages::rate::{RateExpander, RateParams, RateReducer};
+use stairstep::stages::StageSpec;
+use stairstep::stages::{self, Stage};
 use stairstep::{demo, Clip};
 use std::hint::black_box;
 
@@ -29,7 +31,7 @@ const RATE: u32 = 48_000;
 /// One chain block of the `pad` demo's left channel.
 fn block() -> Vec<f32> {
     let pad = demo::demo("pad").expect("built-in demo");
-    pad.channels[0][RATE as usize..RATE as usize + chain::BLOCK].to_vec()
+    pad.channels[0][RATE as usize..RATE as usize + stages::BLOCK].to_vec()
 }
 
 /// The `pad` demo looped to `seconds`, stereo.
@@ -147,9 +149,9 @@ fn rate(c: &mut Criterion) {
         ("hold 48000 to 11025", RateParams::hold(11_025)),
         ("clean 48000 to 12000", RateParams::clean(12_000)),
     ] {
-        let mut reducer = RateReducer::new(&params, RATE, chain::BLOCK).unwrap();
-        let mut expander = RateExpander::new(&params, RATE, chain::BLOCK).unwrap();
-        let mut reduced = vec![0.0f32; reducer.max_output(chain::BLOCK)];
+        let mut reducer = RateReducer::new(&params, RATE, stages::BLOCK).unwrap();
+        let mut expander = RateExpander::new(&params, RATE, stages::BLOCK).unwrap();
+        let mut reduced = vec![0.0f32; reducer.max_output(stages::BLOCK)];
         let mut expanded = vec![0.0f32; expander.max_output(reduced.len())];
         g.bench_function(BenchmarkId::new("reduce", name), |b| {
             b.iter(|| black_box(reducer.process(black_box(&src), &mut reduced)))
@@ -178,11 +180,11 @@ fn chain_render(c: &mut Criterion) {
     g.throughput(Throughput::Elements((input.frames() * input.channel_count()) as u64));
     g.sample_size(20);
     g.bench_function("1 s stereo: gain, 4x hold, 8-bit TPDF", |b| {
-        b.iter(|| black_box(chain::render(&bench, black_box(&input)).unwrap()))
+        b.iter(|| black_box(stairstep::render::render(&bench, black_box(&input)).unwrap()))
     });
     for p in stairstep::preset::builtin() {
         g.bench_function(BenchmarkId::new("1 s stereo, built-in", &p.name), |b| {
-            b.iter(|| black_box(chain::render(&p, black_box(&input)).unwrap()))
+            b.iter(|| black_box(stairstep::render::render(&p, black_box(&input)).unwrap()))
         });
     }
     g.finish();

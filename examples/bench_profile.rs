@@ -11,12 +11,14 @@
 //! the number of repetitions.
 
 use stairstep::analysis::{SpectrumAnalyzer, Window};
-use stairstep::chain;
-use stairstep::clip::{GainParams, Overflow};
-use stairstep::dither::DitherKind;
-use stairstep::preset::{Preset, StageSpec};
-use stairstep::quantize::{QuantizeParams, Quantizer};
-use stairstep::rate::RateParams;
+use stairstep::preset::Preset;
+use stairstep::render;
+use stairstep::stages;
+use stairstep::stages::dither::DitherKind;
+use stairstep::stages::gain::{GainParams, Overflow};
+use stairstep::stages::quantize::{QuantizeParams, Quantizer};
+use stairstep::stages::rate::RateParams;
+use stairstep::stages::StageSpec;
 use stairstep::{demo, Clip};
 use std::hint::black_box;
 use std::time::Instant;
@@ -41,18 +43,19 @@ fn main() {
                 ],
             );
             for _ in 0..reps {
-                black_box(chain::render(&preset, black_box(&clip)).unwrap());
+                black_box(render::render(&preset, black_box(&clip)).unwrap());
             }
             n * 2
         }
         "gain" => {
-            let mut g = stairstep::clip::Gain::new(&GainParams { gain_db: 3.0, overflow: Overflow::Clip }).unwrap();
-            let mut buf = clip.channels[0][..chain::BLOCK].to_vec();
+            let mut g =
+                stairstep::stages::gain::Gain::new(&GainParams { gain_db: 3.0, overflow: Overflow::Clip }).unwrap();
+            let mut buf = clip.channels[0][..stages::BLOCK].to_vec();
             for _ in 0..reps * 1000 {
-                buf.copy_from_slice(&clip.channels[0][..chain::BLOCK]);
+                buf.copy_from_slice(&clip.channels[0][..stages::BLOCK]);
                 g.process(black_box(&mut buf));
             }
-            chain::BLOCK * 1000
+            stages::BLOCK * 1000
         }
         "quantize" | "tpdf" => {
             let p = if what == "tpdf" {
@@ -61,11 +64,11 @@ fn main() {
                 QuantizeParams::bits(8)
             };
             let mut q = Quantizer::new(&p, 1, 0).unwrap();
-            let mut buf = clip.channels[0][..chain::BLOCK].to_vec();
+            let mut buf = clip.channels[0][..stages::BLOCK].to_vec();
             for _ in 0..reps * 1000 {
                 q.process(black_box(&mut buf));
             }
-            chain::BLOCK * 1000
+            stages::BLOCK * 1000
         }
         "spectrum" => {
             let mut a = SpectrumAnalyzer::new(4096, Window::Hann).unwrap();

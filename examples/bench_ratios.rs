@@ -20,13 +20,15 @@
 
 use serde_json::{json, Value};
 use stairstep::analysis::{SpectrumAnalyzer, Window};
-use stairstep::chain;
-use stairstep::clip::{Gain, GainParams, Overflow};
-use stairstep::dither::DitherKind;
 use stairstep::io::{ExportFormat, WavEncoding};
-use stairstep::preset::{Preset, StageSpec};
-use stairstep::quantize::{QuantizeParams, Quantizer};
-use stairstep::rate::RateParams;
+use stairstep::preset::Preset;
+use stairstep::render;
+use stairstep::stages;
+use stairstep::stages::dither::DitherKind;
+use stairstep::stages::gain::{Gain, GainParams, Overflow};
+use stairstep::stages::quantize::{QuantizeParams, Quantizer};
+use stairstep::stages::rate::RateParams;
+use stairstep::stages::StageSpec;
 use stairstep::{demo, Clip};
 use std::hint::black_box;
 use std::io::{BufRead, BufReader, Write};
@@ -366,10 +368,10 @@ fn main() {
 
     // ---- core chain: native versus numpy, then versus wasm --------------------------------------------------------
     eprintln!("core chain (gain → 4× hold → 8-bit TPDF):");
-    let last = std::cell::RefCell::new(None::<chain::Render>);
+    let last = std::cell::RefCell::new(None::<render::Render>);
     let mut native_chain = || {
         let t = Instant::now();
-        let r = chain::render(&preset, &clip).expect("render");
+        let r = render::render(&preset, &clip).expect("render");
         black_box(&r.export);
         let s = t.elapsed().as_secs_f64();
         *last.borrow_mut() = Some(r); // the previous render is freed here, outside the timing
@@ -490,7 +492,7 @@ fn main() {
     eprintln!("undithered quantization vs copy_from_slice:");
     let source: Vec<f32> = clip.channels[0].iter().copied().cycle().take(z.big).collect();
     for (label, n, reps) in [
-        ("in cache: 4,096 samples, one chain block", chain::BLOCK, z.small_reps),
+        ("in cache: 4,096 samples, one chain block", stages::BLOCK, z.small_reps),
         ("out of cache: buffer", z.big, z.big_reps),
     ] {
         let src = &source[..n];
@@ -513,7 +515,7 @@ fn main() {
         };
         let (ta, tb) = alternate(z.rounds, &mut quant, &mut copy);
         let pair = Pair { ta, tb };
-        let label = if n == chain::BLOCK {
+        let label = if n == stages::BLOCK {
             label.to_string()
         } else {
             format!("{label} of {} samples ({} MiB)", n, (n * 4) >> 20)

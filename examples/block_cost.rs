@@ -10,7 +10,8 @@
 //! cargo run --release --example block_cost [-- --channels 2 --seconds 60 --json]
 //! ```
 
-use stairstep::chain::{Chain, ChainOutput, BLOCK, UNBOUNDED};
+use stairstep::chain::{Chain, ChainOutput, UNBOUNDED};
+use stairstep::stages::BLOCK;
 use stairstep::Preset;
 use std::alloc::{GlobalAlloc, Layout, System};
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
@@ -119,7 +120,7 @@ fn main() {
     let mut block = |checksum: &mut f64| {
         for (g, x) in gained.iter_mut().zip(&input) {
             g.clear();
-            g.extend(x[pos..pos + FRAMES].iter().zip(&gain).map(|(&s, &k)| stairstep::chain::sanitize(s) * k));
+            g.extend(x[pos..pos + FRAMES].iter().zip(&gain).map(|(&s, &k)| stairstep::sample::sanitize(s) * k));
         }
         out.clear();
         chain.process_block(&gained, &mut out);

@@ -16,27 +16,44 @@ pub const MAX_SAMPLE_RATE: u32 = 768_000;
 /// Most channels accepted anywhere.
 pub const MAX_CHANNELS: usize = 64;
 
+/// Checks a channel count: 1 to [`MAX_CHANNELS`].
+pub fn check_channels(channels: usize) -> Result<()> {
+    if channels == 0 || channels > MAX_CHANNELS {
+        return Err(Error::param("channels", channels, format!("1..={MAX_CHANNELS}")));
+    }
+    Ok(())
+}
+
+/// Checks a sample rate: 1 to [`MAX_SAMPLE_RATE`] Hz.
+pub fn check_sample_rate(sample_rate: u32) -> Result<()> {
+    if sample_rate == 0 || sample_rate > MAX_SAMPLE_RATE {
+        return Err(Error::param("sample_rate", sample_rate, format!("1..={MAX_SAMPLE_RATE} Hz")));
+    }
+    Ok(())
+}
+
 impl Clip {
-    /// Builds a clip, checking rate, channel count and equal lengths.
-    pub fn new(sample_rate: u32, channels: Vec<Vec<f32>>) -> Result<Self> {
-        if sample_rate == 0 || sample_rate > MAX_SAMPLE_RATE {
-            return Err(Error::param("sample_rate", sample_rate, format!("1..={MAX_SAMPLE_RATE} Hz")));
-        }
-        if channels.is_empty() || channels.len() > MAX_CHANNELS {
-            return Err(Error::param("channels", channels.len(), format!("1..={MAX_CHANNELS}")));
-        }
-        let n = channels[0].len();
-        if channels.iter().any(|c| c.len() != n) {
+    /// Checks rate, channel count and equal lengths (what [`Clip::new`] checks, for clips built field by field).
+    pub fn check(&self) -> Result<()> {
+        check_sample_rate(self.sample_rate)?;
+        check_channels(self.channels.len())?;
+        let n = self.channels[0].len();
+        if self.channels.iter().any(|c| c.len() != n) {
             return Err(Error::format("channels have different lengths"));
         }
-        Ok(Clip { sample_rate, channels })
+        Ok(())
+    }
+
+    /// Builds a clip, checking rate, channel count and equal lengths.
+    pub fn new(sample_rate: u32, channels: Vec<Vec<f32>>) -> Result<Self> {
+        let clip = Clip { sample_rate, channels };
+        clip.check()?;
+        Ok(clip)
     }
 
     /// Builds a clip from interleaved samples.
     pub fn from_interleaved(sample_rate: u32, channel_count: usize, data: &[f32]) -> Result<Self> {
-        if channel_count == 0 || channel_count > MAX_CHANNELS {
-            return Err(Error::param("channels", channel_count, format!("1..={MAX_CHANNELS}")));
-        }
+        check_channels(channel_count)?;
         let frames = data.len() / channel_count;
         let mut channels = vec![Vec::with_capacity(frames); channel_count];
         for frame in data.chunks_exact(channel_count) {

@@ -13,61 +13,20 @@
 //! `⌈frames·export_rate/source_rate⌉` frames, and the audition lines up sample for sample with the input and has
 //! exactly its length. The error signal is audition − input; the report's SQNR is measured on it.
 
-use crate::adpcm::AdpcmRoundTrip;
 use crate::analysis::levels::{LevelsAcc, SqnrAcc};
 use crate::analysis::Levels;
 use crate::audio::Clip;
-use crate::clip::Gain;
-use crate::companding::{Compander, G711};
 use crate::error::{Error, Result};
-use crate::io::{ExportFormat, ExportMeta, SampleLoop, WavEncoding};
-use crate::minifloat::Minifloat;
-use crate::prep::{self, LoopRegion, PrepReport};
-use crate::preset::{Preset, StageSpec};
-use crate::quantize::Quantizer;
-use crate::rate::{reduced_len, RateExpander, RateReducer};
+use crate::preset::Preset;
+use crate::sample::sanitize;
+use crate::stages::rate::{reduced_len, RateExpander, RateReducer};
+use crate::stages::{self, Stage, StageSpec, BLOCK};
 use serde::Serialize;
 use std::collections::VecDeque;
-
-/// Most frames per block.
-pub const BLOCK: usize = 4096;
 
 /// The `frames` of a stream without an end (live input): no length check, no cut at the end. On 32-bit targets
 /// (wasm32) `usize::MAX` frames is only about a day at 48 kHz, so it is not treated as a length.
 pub const UNBOUNDED: usize = usize::MAX;
-
-/// A stage that keeps the sample rate: processes a block in place, never allocates.
-pub trait Stage: Send {
-    /// Processes `buf` in place.
-    fn process(&mut self, buf: &mut [f32]);
-    /// Returns to the freshly built state (seeded generators restart).
-    fn reset(&mut self);
-    /// Samples clipped by this stage so far.
-    fn clipped(&self) -> u64 {
-        0
-    }
-    /// The SQNR in dB a formula predicts for this stage on a busy, unclipped input of mean square `input_ms`, where
-    /// a simple formula exists (see each stage's docs for its conditions).
-    fn theory_sqnr_db(&self, input_ms: f64) -> Option<f64> {
-        let _ = input_ms;
-        None
-    }
-}
-
-impl Stage for Quantizer {
-    fn process(&mut self, buf: &mut [f32]) {
-        Quantizer::process(self, buf)
-    }
-    fn reset(&mut self) {
-        Quantizer::reset(self)
-    }
-    fn clipped(&self) -> u64 {
-        Quantizer::clipped(self)
-    }
-    fn theory_sqnr_db(&self, input_ms: f64) -> Option<f64> {
-        Some(crate::analysis::power_db(input_ms / Quantizer::theory_error_power(self)))
-    }
-}
 
 /// A stage built for one channel.
 enum Node {
@@ -75,30 +34,6 @@ enum Node {
     Plain(Box<dyn Stage>),
     /// Changes the rate: the reducer, and the expander that brings the final signal back for audition.
     Rate { reducer: RateReducer, expander: RateExpander },
-}
-
-/// Builds a rate-keeping stage. `stream` distinguishes channels and stages for seeded generators.
-fn build_plain(spec: &StageSpec, seed: u64, stream: u64) -> Result<Option<Box<dyn Stage>>> {
-    Ok(Some(match spec {
-        StageSpec::Gain(p) => Box::new(Gain::new(p)?),
-        StageSpec::Quantize(p) => Box::new(Quantizer::new(p, seed, stream)?),
-        StageSpec::G711(p) => Box::new(G711::new(p)?),
-        StageSpec::Compand(p) => Box::new(Compander::new(p)?),
-        StageSpec::Minifloat(p) => Box::new(Minifloat::new(p)?),
-        StageSpec::Adpcm(p) => Box::new(AdpcmRoundTrip::new(p)?),
-        StageSpec::Rate(_) => return Ok(None),
-    }))
-}
-
-/// Validates one stage's parameters (those that need no source rate; the rate stage is checked against the source
-/// when a chain is built).
-pub fn validate_stage(spec: &StageSpec) -> Result<()> {
-    match spec {
-        StageSpec::Rate(p) => {
-            crate::error::check_range_u("rate_hz", p.rate_hz as u64, 1, crate::audio::MAX_SAMPLE_RATE as u64)
-        }
-        other => build_plain(other, 0, 0).map(|_| ()),
-    }
 }
 
 /// What a render reports besides the samples.
@@ -136,57 +71,15 @@ pub struct RenderReport {
     pub theory_note: Option<String>,
 }
 
-/// The result of rendering a clip through a preset: asset preparation, then the chain.
+/// A whole clip run through a chain ([`Chain::process_clip`]).
 #[derive(Debug, Clone)]
-pub struct Render {
-    /// The processed sound at the export rate: what an exporter writes.
+pub struct Processed {
+    /// The processed sound at the export rate.
     pub export: Clip,
-    /// The processed sound at the source rate, aligned sample for sample with the chain's input.
+    /// The processed sound at the source rate, aligned sample for sample with the input.
     pub audition: Clip,
-    /// The chain's input when the preset prepares the sound (trim, mono, fades, normalisation, loop crossfade), or
-    /// `None` when it does not, in which case the chain's input is the clip given.
-    pub prepared: Option<Clip>,
-    /// What the preparation did, when the preset prepares the sound.
-    pub prep: Option<PrepReport>,
-    /// Loop points for the export, at the export rate (snapped to ADPCM blocks for an ADPCM export).
-    pub export_meta: ExportMeta,
-    /// Figures about the render.
+    /// Figures about the run.
     pub report: RenderReport,
-}
-
-impl Render {
-    /// The chain's input: the prepared clip, or `original` when the preset prepares nothing.
-    pub fn input<'a>(&'a self, original: &'a Clip) -> &'a Clip {
-        self.prepared.as_ref().unwrap_or(original)
-    }
-
-    /// Error signal (audition − chain input) of channel `ch`, aligned; `original` is the clip given to the render.
-    pub fn error(&self, original: &Clip, ch: usize) -> Vec<f32> {
-        let input = self.input(original);
-        self.audition.channels[ch].iter().zip(&input.channels[ch]).map(|(&o, &i)| o - sanitize(i)).collect()
-    }
-
-    /// The export encoded in `format`, with its loop points.
-    pub fn encode(&self, format: &ExportFormat) -> Result<Vec<u8>> {
-        format.encode_with(&self.export, &self.export_meta)
-    }
-
-    /// Exact size in bytes of [`encode`](Self::encode)'s output.
-    pub fn encoded_size(&self, format: &ExportFormat) -> u64 {
-        format.file_size_with(self.export.frames(), self.export.channel_count(), &self.export_meta)
-    }
-}
-
-/// Replaces NaN by 0 and ±Inf by ±1.0.
-#[inline]
-pub fn sanitize(x: f32) -> f32 {
-    if x.is_nan() {
-        0.0
-    } else if x.is_infinite() {
-        x.signum()
-    } else {
-        x
-    }
 }
 
 /// Drops the first `skip` samples of a stream and stops after `limit`.
@@ -280,9 +173,7 @@ impl Chain {
     /// Builds the chain of `preset` for `channels` channels at `sample_rate` Hz and a stream of `frames` frames
     /// ([`UNBOUNDED`] for a live stream).
     pub fn new(preset: &Preset, channels: usize, sample_rate: u32, frames: usize) -> Result<Self> {
-        if channels == 0 || channels > crate::audio::MAX_CHANNELS {
-            return Err(Error::param("channels", channels, format!("1..={}", crate::audio::MAX_CHANNELS)));
-        }
+        crate::audio::check_channels(channels)?;
         let active_rates: Vec<usize> = preset
             .stages
             .iter()
@@ -305,7 +196,7 @@ impl Chain {
             for (i, slot) in preset.stages.iter().enumerate() {
                 let at = |e: Error| e.at(&format!("stages[{i}]"));
                 if slot.bypass {
-                    validate_stage(&slot.stage).map_err(at)?;
+                    stages::validate(&slot.stage).map_err(at)?;
                     nodes.push(None);
                     continue;
                 }
@@ -317,9 +208,11 @@ impl Chain {
                         rate_at = Some(i);
                         Node::Rate { reducer, expander }
                     }
-                    spec => {
-                        Node::Plain(build_plain(spec, preset.seed, (i * 64 + ch) as u64).map_err(at)?.expect("plain"))
-                    }
+                    spec => Node::Plain(
+                        stages::build(spec, preset.seed, (i * 64 + ch) as u64)
+                            .map_err(at)?
+                            .expect("a rate-keeping stage"),
+                    ),
                 };
                 nodes.push(Some(node));
             }
@@ -472,8 +365,9 @@ impl Chain {
         }
     }
 
-    /// Renders a whole clip (which must have the channel count, rate and length the chain was built for).
-    pub fn render(mut self, input: &Clip) -> Result<Render> {
+    /// Runs a whole clip through the chain (which must have been built for its channel count, rate and length):
+    /// every block, then [`finish`](Self::finish).
+    pub fn process_clip(mut self, input: &Clip) -> Result<Processed> {
         if input.channel_count() != self.lanes.len()
             || input.sample_rate != self.source_rate
             || input.frames() != self.frames
@@ -503,12 +397,9 @@ impl Chain {
             start = end;
         }
         let report = self.finish(&mut out);
-        Ok(Render {
+        Ok(Processed {
             export: Clip { sample_rate: self.export_rate, channels: out.export },
             audition: Clip { sample_rate: self.source_rate, channels: out.audition },
-            prepared: None,
-            prep: None,
-            export_meta: ExportMeta::default(),
             report,
         })
     }
@@ -571,56 +462,4 @@ impl Lane {
         out.export[ch].extend_from_slice(&self.export_buf);
         out.audition[ch].extend_from_slice(&self.audition_buf);
     }
-}
-
-/// Renders `input` through `preset`: its asset preparation, then its chain.
-pub fn render(preset: &Preset, input: &Clip) -> Result<Render> {
-    render_with_loop(preset, input, None)
-}
-
-/// Like [`render`], with a loop found in the input file (e.g. its `smpl` chunk: input frames, end exclusive), used
-/// when the preset sets no loop region of its own.
-pub fn render_with_loop(preset: &Preset, input: &Clip, file_loop: Option<(u64, u64)>) -> Result<Render> {
-    let mut prep = preset.prep.clone();
-    if prep.loop_region.is_none() {
-        prep.loop_region = file_loop.map(|(start, end)| LoopRegion { start, end, crossfade_ms: 0.0 });
-    }
-    let prepared = if prep.is_noop() { None } else { Some(prep::prepare(&prep, input).map_err(|e| e.at("prep"))?) };
-    let clip = prepared.as_ref().map_or(input, |p| &p.clip);
-    let r = Chain::new(preset, clip.channel_count(), clip.sample_rate, clip.frames())?.render(clip)?;
-    let mut export_meta = ExportMeta::default();
-    if let Some((start, end)) = prepared.as_ref().and_then(|p| p.report.loop_region) {
-        export_meta.loops.push(export_loop(start, end, &r, &preset.export)?);
-    }
-    let (prepared, prep) = match prepared {
-        Some(p) => (Some(p.clip), Some(p.report)),
-        None => (None, None),
-    };
-    Ok(Render { prepared, prep, export_meta, ..r })
-}
-
-/// A loop in chain-input frames (end exclusive) as the export's `smpl` loop: rescaled exactly to the export rate
-/// ([`prep::rescale_loop`]: the export samples that come from inside the loop), snapped to whole blocks for IMA ADPCM
-/// (a decoder can only restart at a block header; [`prep::snap_to_block`]), end made inclusive as `smpl` wants.
-fn export_loop(start: u64, end: u64, r: &Render, format: &ExportFormat) -> Result<SampleLoop> {
-    let (mut s, mut e) = prep::rescale_loop(start, end, r.report.source_rate, r.report.export_rate);
-    if let ExportFormat::Wav { encoding: WavEncoding::ImaAdpcm, block_align } = format {
-        let ch = r.export.channel_count();
-        let spb = crate::adpcm::samples_per_block(
-            block_align.map_or_else(|| crate::adpcm::default_block_align(ch), |b| b as usize),
-            ch,
-        )?;
-        (s, e) = prep::snap_to_block(s, e, spb as u64).map_err(|e| e.at("prep"))?;
-    }
-    let frames = r.export.frames() as u64;
-    let e = e.min(frames);
-    if e <= s {
-        return Err(Error::param(
-            "prep.loop_region",
-            format!("{start}..{end}"),
-            "a loop of at least one sample at the export rate",
-        ));
-    }
-    let to_u32 = |v: u64| u32::try_from(v).map_err(|_| Error::param("prep.loop_region", v, "at most 2^32 − 1"));
-    Ok(SampleLoop::forward(to_u32(s)?, to_u32(e - 1)?))
 }

@@ -87,3 +87,30 @@ pub(crate) fn check_range_u(name: &str, v: u64, lo: u64, hi: u64) -> Result<()> 
         Err(Error::param(name, v, format!("{lo}..={hi}")))
     }
 }
+
+/// The allowed range of a numeric parameter, stated once beside its stage and read by the validation, the page's
+/// forms and the CLI's help (see [`crate::stages::schema`]).
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct Range {
+    /// Smallest allowed value.
+    pub min: f64,
+    /// Largest allowed value.
+    pub max: f64,
+}
+
+impl Range {
+    /// A range from `min` to `max`, both included.
+    pub const fn new(min: f64, max: f64) -> Self {
+        Range { min, max }
+    }
+
+    /// Checks a real value; the error says `min to max` and the unit (e.g. " dB").
+    pub fn check_f(&self, name: &str, v: f64, unit: &str) -> Result<()> {
+        check_range_f(name, v, self.min, self.max, unit)
+    }
+
+    /// Checks a whole value; the error says `min..=max`.
+    pub fn check_u(&self, name: &str, v: u64) -> Result<()> {
+        check_range_u(name, v, self.min as u64, self.max as u64)
+    }
+}

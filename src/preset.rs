@@ -13,42 +13,17 @@
 //! Every stage object has `kind` and an optional `bypass` (default false); its other fields are the stage's
 //! parameters, each with a default. Unknown fields are errors, so a typo never passes silently.
 
-use crate::adpcm::AdpcmParams;
-use crate::chain::validate_stage;
-use crate::clip::GainParams;
-use crate::companding::{CompandParams, G711Params};
 use crate::error::{Error, Result};
 use crate::io::ExportFormat;
-use crate::minifloat::MinifloatParams;
 use crate::prep::PrepParams;
-use crate::quantize::QuantizeParams;
-use crate::rate::RateParams;
+use crate::stages::quantize::QuantizeParams;
+use crate::stages::{self, StageSpec};
 use serde::{Deserialize, Serialize};
 
 /// Value of the `format` field.
 pub const PRESET_FORMAT: &str = "stairstep-preset";
 /// Newest preset version this build reads and the one it writes.
 pub const PRESET_VERSION: u32 = 1;
-
-/// One stage of the chain and its parameters.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(tag = "kind", rename_all = "kebab-case")]
-pub enum StageSpec {
-    /// Gain in dB, then what happens beyond full scale (clip, wrap, fold, saturate).
-    Gain(GainParams),
-    /// Sample-rate reduction (zero-order hold or band-limited); at most one active per chain.
-    Rate(RateParams),
-    /// Uniform quantizer (with dither and noise shaping).
-    Quantize(QuantizeParams),
-    /// ITU-T G.711 μ-law or A-law, 8-bit, bit-exact encode and decode.
-    G711(G711Params),
-    /// Continuous μ-law or A-law curve with adjustable μ or A and any bit count.
-    Compand(CompandParams),
-    /// Minifloat with chosen exponent and mantissa bits.
-    Minifloat(MinifloatParams),
-    /// IMA ADPCM (4-bit) encode then decode: hear what an ADPCM export will contain.
-    Adpcm(AdpcmParams),
-}
 
 /// A stage in a preset, with its bypass flag.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -146,7 +121,7 @@ impl Preset {
         }
         self.prep.validate().map_err(|e| e.at("prep"))?;
         for (i, slot) in self.stages.iter().enumerate() {
-            validate_stage(&slot.stage).map_err(|e| e.at(&format!("stages[{i}]")))?;
+            stages::validate(&slot.stage).map_err(|e| e.at(&format!("stages[{i}]")))?;
         }
         self.export.validate().map_err(|e| e.at("export"))
     }
@@ -154,12 +129,12 @@ impl Preset {
 
 /// The built-in presets, shared by the page and the CLI (`stairstep presets`).
 pub fn builtin() -> Vec<Preset> {
-    use crate::clip::{GainParams, Overflow};
-    use crate::companding::{G711Params, Law};
-    use crate::dither::DitherKind;
     use crate::io::WavEncoding;
-    use crate::minifloat::MinifloatParams;
-    use crate::rate::{RateMode, RateParams};
+    use crate::stages::dither::DitherKind;
+    use crate::stages::g711::{G711Params, Law};
+    use crate::stages::gain::{GainParams, Overflow};
+    use crate::stages::minifloat::MinifloatParams;
+    use crate::stages::rate::{RateMode, RateParams};
     let q = |p: QuantizeParams| StageSpec::Quantize(p);
     let wav = |encoding| ExportFormat::Wav { encoding, block_align: None };
     let make = |name: &str, description: &str, stages: Vec<StageSpec>, export: ExportFormat| Preset {
@@ -197,7 +172,7 @@ pub fn builtin() -> Vec<Preset> {
             "8-bit with TPDF dither and first-order noise shaping at the source rate: the quietest honest 8-bit",
             vec![q(QuantizeParams {
                 dither: DitherKind::Tpdf,
-                shaping: crate::dither::Shaping::FirstOrder,
+                shaping: crate::stages::dither::Shaping::FirstOrder,
                 ..QuantizeParams::bits(8)
             })],
             wav(WavEncoding::PcmS16),

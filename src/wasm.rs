@@ -4,8 +4,9 @@
 //! and small JSON strings. Errors become JS exceptions carrying the crate's error message.
 
 use crate::analysis::{envelope, SpectrumAnalyzer, Window};
-use crate::chain::{self, Render};
 use crate::prep::PrepParams;
+use crate::render::{self, Render};
+use crate::{sample, stages};
 use crate::{demo, io, Clip, Error, Preset};
 use std::borrow::Cow;
 use wasm_bindgen::prelude::*;
@@ -122,7 +123,7 @@ impl Session {
 
     /// Renders the loaded sound through the preset; returns the [`crate::chain::RenderReport`] as JSON.
     pub fn render(&mut self) -> Result<String, JsError> {
-        let r = chain::render(&self.preset, &self.source).map_err(js_err)?;
+        let r = render::render(&self.preset, &self.source).map_err(js_err)?;
         let mut v = serde_json::to_value(&r.report).map_err(|e| JsError::new(&e.to_string()))?;
         // The asset budget: the exact size of the file the export would write, and its data rate.
         let fmt = &self.preset.export;
@@ -215,14 +216,14 @@ impl Session {
     pub fn sweep(&self, max_seconds: f64) -> Result<String, JsError> {
         let n = ((max_seconds.max(0.0) * self.source.sample_rate as f64) as usize).min(self.source.frames());
         let head: Vec<&[f32]> = self.source.channels.iter().map(|c| &c[..n]).collect();
-        let pts =
-            crate::analysis::sqnr_sweep(&head, &crate::quantize::QuantizeParams::default(), 1..=24).map_err(js_err)?;
+        let pts = crate::analysis::sqnr_sweep(&head, &crate::stages::quantize::QuantizeParams::default(), 1..=24)
+            .map_err(js_err)?;
         serde_json::to_string(&pts).map_err(|e| JsError::new(&e.to_string()))
     }
 
     /// Gain staging before a `bits`-bit quantizer, for the chain's input (the prepared sound once rendered): peak,
     /// headroom in dB and in LSB, bits used, and the pre-gain in dB that maximises the SQNR while clipping at most
-    /// `max_clipped` samples. JSON: [`crate::prep::Headroom`] plus `suggested_gain_db`.
+    /// `max_clipped` samples. JSON: [`crate::analysis::headroom::Headroom`] plus `suggested_gain_db`.
     pub fn headroom(&mut self, bits: u32, max_clipped: u32) -> Result<String, JsError> {
         crate::error::check_range_u("bits", bits as u64, 1, 24).map_err(js_err)?;
         if let Some((b, m, s)) = &self.headroom_cache {
@@ -231,9 +232,9 @@ impl Session {
             }
         }
         let clip = self.render.as_ref().map_or(&self.source, |r| r.input(&self.source));
-        let mut v =
-            serde_json::to_value(crate::prep::headroom(clip, bits)).map_err(|e| JsError::new(&e.to_string()))?;
-        v["suggested_gain_db"] = crate::prep::suggest_pre_gain(clip, bits, max_clipped as u64).into();
+        let mut v = serde_json::to_value(crate::analysis::headroom::headroom(clip, bits))
+            .map_err(|e| JsError::new(&e.to_string()))?;
+        v["suggested_gain_db"] = crate::analysis::headroom::suggest_pre_gain(clip, bits, max_clipped as u64).into();
         let s = v.to_string();
         self.headroom_cache = Some((bits, max_clipped, s.clone()));
         Ok(s)
@@ -267,7 +268,7 @@ impl Session {
 // ---------------------------------------------------------------------------------------------------------------------
 
 /// Real-time processing for the AudioWorklet: a chain fed block by block (128 frames in a worklet, any size up to
-/// [`chain::BLOCK`]) with no allocation per block.
+/// [`stages::BLOCK`]) with no allocation per block.
 ///
 /// # I/O
 /// JS writes each channel's input into wasm memory at [`LiveChain::input_ptr`] (`maxFrames` floats per channel), calls
@@ -348,7 +349,7 @@ impl LiveChain {
         let base = Preset::from_json(preset_json).map_err(js_err)?;
         let key = live::Key::of(&base, sample_rate, -1.0, -1.0, -1.0);
         let current = live::Slot::build(&base, key, channels, sample_rate).map_err(js_err)?;
-        let block = || vec![0.0f32; chain::BLOCK];
+        let block = || vec![0.0f32; stages::BLOCK];
         Ok(LiveChain {
             channels,
             sample_rate,
@@ -362,10 +363,10 @@ impl LiveChain {
             failed: None,
             last_error: None,
             fade: ((sample_rate as f64 * 0.005).round() as usize).max(1),
-            input: vec![0.0; channels * chain::BLOCK],
-            output: vec![0.0; channels * chain::BLOCK],
-            gained: (0..channels).map(|_| Vec::with_capacity(chain::BLOCK)).collect(),
-            dry_in: (0..channels).map(|_| Vec::with_capacity(chain::BLOCK)).collect(),
+            input: vec![0.0; channels * stages::BLOCK],
+            output: vec![0.0; channels * stages::BLOCK],
+            gained: (0..channels).map(|_| Vec::with_capacity(stages::BLOCK)).collect(),
+            dry_in: (0..channels).map(|_| Vec::with_capacity(stages::BLOCK)).collect(),
             gain_curve: block(),
             mix_curve: block(),
             out_curve: block(),
@@ -396,7 +397,7 @@ impl LiveChain {
     /// Most frames per [`process`](Self::process) call (the length of each channel's buffer).
     #[wasm_bindgen(getter, js_name = maxFrames)]
     pub fn max_frames(&self) -> usize {
-        chain::BLOCK
+        stages::BLOCK
     }
 
     /// Frames by which the output lags the input (see the type's docs); changes only when a rebuilt chain with
@@ -428,13 +429,13 @@ impl LiveChain {
     /// channel).
     #[wasm_bindgen(js_name = inputPtr)]
     pub fn input_ptr(&self, channel: usize) -> usize {
-        self.input[channel.min(self.channels - 1) * chain::BLOCK..].as_ptr() as usize
+        self.input[channel.min(self.channels - 1) * stages::BLOCK..].as_ptr() as usize
     }
 
     /// Byte address in wasm memory of channel `channel`'s output buffer (`maxFrames` floats).
     #[wasm_bindgen(js_name = outputPtr)]
     pub fn output_ptr(&self, channel: usize) -> usize {
-        self.output[channel.min(self.channels - 1) * chain::BLOCK..].as_ptr() as usize
+        self.output[channel.min(self.channels - 1) * stages::BLOCK..].as_ptr() as usize
     }
 
     /// Pre-chain gain in dB (−120 to +60; NaN is ignored), reached by a linear ramp over the next block.
@@ -544,7 +545,7 @@ impl LiveChain {
 
     /// Processes `frames` frames (clamped to `maxFrames`) from the input buffers into the output buffers.
     pub fn process(&mut self, frames: usize) {
-        let n = frames.min(chain::BLOCK);
+        let n = frames.min(stages::BLOCK);
         if n == 0 {
             return;
         }
@@ -559,12 +560,12 @@ impl LiveChain {
         self.mix.fill(&mut self.mix_curve[..n]);
         self.out_gain.fill(&mut self.out_curve[..n]);
         for ch in 0..self.channels {
-            let x = &self.input[ch * chain::BLOCK..ch * chain::BLOCK + n];
+            let x = &self.input[ch * stages::BLOCK..ch * stages::BLOCK + n];
             let (g, d) = (&mut self.gained[ch], &mut self.dry_in[ch]);
             g.clear();
             d.clear();
-            g.extend(x.iter().zip(&self.gain_curve[..n]).map(|(&s, &k)| chain::sanitize(s) * k));
-            d.extend(x.iter().map(|&s| chain::sanitize(s)));
+            g.extend(x.iter().zip(&self.gain_curve[..n]).map(|(&s, &k)| sample::sanitize(s) * k));
+            d.extend(x.iter().map(|&s| sample::sanitize(s)));
         }
         let mix = &self.mix_curve[..n];
         self.current.run(&self.gained, &self.dry_in, mix, &mut self.stats);
@@ -576,7 +577,7 @@ impl LiveChain {
             None => false,
         };
         for ch in 0..self.channels {
-            let y = &mut self.output[ch * chain::BLOCK..ch * chain::BLOCK + n];
+            let y = &mut self.output[ch * stages::BLOCK..ch * stages::BLOCK + n];
             for ((o, &m), &k) in y.iter_mut().zip(&self.current.mixed[ch][..n]).zip(&self.out_curve[..n]) {
                 *o = m * k;
             }
@@ -629,16 +630,18 @@ impl LiveChain {
 
 /// The parts of [`LiveChain`] that need no JS.
 mod live {
-    use crate::chain::{Chain, ChainOutput, BLOCK, UNBOUNDED};
-    use crate::dither::DitherKind;
-    use crate::preset::{Preset, StageSpec};
-    use crate::quantize::Grid;
-    use crate::rate::{RateExpander, RateMode, RateReducer};
+    use crate::chain::{Chain, ChainOutput, UNBOUNDED};
+    use crate::stages::BLOCK;
+    use crate::preset::Preset;
+    use crate::stages::dither::DitherKind;
+    use crate::stages::quantize::Grid;
+    use crate::stages::rate::{RateExpander, RateMode, RateReducer};
+    use crate::stages::StageSpec;
     use crate::Result;
 
     /// dB to a linear factor, clamped to −120..+60 dB; NaN keeps the factor at its old value (returns None).
     pub fn db_gain(db: f64) -> Option<f64> {
-        (!db.is_nan()).then(|| crate::clip::db_to_gain(db.clamp(-120.0, 60.0)))
+        (!db.is_nan()).then(|| crate::db::db_to_gain(db.clamp(-120.0, 60.0)))
     }
 
     /// A value ramped linearly across one block from where it was to its target.
@@ -693,14 +696,14 @@ mod live {
         pub dither_centi: Option<u32>,
     }
 
-    fn first_quantize(p: &Preset) -> Option<&crate::quantize::QuantizeParams> {
+    fn first_quantize(p: &Preset) -> Option<&crate::stages::quantize::QuantizeParams> {
         p.active_stages().find_map(|s| match s {
             StageSpec::Quantize(q) => Some(q),
             _ => None,
         })
     }
 
-    fn first_hold_rate(p: &Preset) -> Option<&crate::rate::RateParams> {
+    fn first_hold_rate(p: &Preset) -> Option<&crate::stages::rate::RateParams> {
         p.active_stages().find_map(|s| match s {
             StageSpec::Rate(r) if r.mode == RateMode::Hold => Some(r),
             _ => None,

@@ -3,10 +3,12 @@
 
 use stairstep::analysis::spectrum::peak_bin;
 use stairstep::analysis::{SpectrumAnalyzer, Window};
-use stairstep::chain::{self, Chain, ChainOutput, BLOCK};
-use stairstep::preset::{Preset, StageSlot, StageSpec};
-use stairstep::quantize::QuantizeParams;
-use stairstep::rate::{self, RateParams};
+use stairstep::chain::{Chain, ChainOutput};
+use stairstep::preset::{Preset, StageSlot};
+use stairstep::render;
+use stairstep::stages::quantize::QuantizeParams;
+use stairstep::stages::rate::{self, RateParams};
+use stairstep::stages::{StageSpec, BLOCK};
 use stairstep::Clip;
 
 fn tone(rate: u32, hz: f64, amp: f64, n: usize) -> Vec<f32> {
@@ -22,7 +24,7 @@ fn hold_to_a_quarter_rate_exports_every_fourth_sample_quantized() {
     let x = tone(44_100, 440.0, 0.8, 10_001);
     let clip = Clip::new(44_100, vec![x.clone()]).unwrap();
     let p = preset(vec![StageSpec::Rate(RateParams::hold(11_025)), StageSpec::Quantize(QuantizeParams::bits(8))]);
-    let r = chain::render(&p, &clip).unwrap();
+    let r = render::render(&p, &clip).unwrap();
     assert_eq!(r.export.sample_rate, 11_025);
     assert_eq!(r.export.frames(), 2501); // ⌈10001 / 4⌉
     for (k, &y) in r.export.channels[0].iter().enumerate() {
@@ -41,11 +43,11 @@ fn hold_to_a_quarter_rate_exports_every_fourth_sample_quantized() {
 fn aliasing_through_the_chain() {
     let clip = Clip::new(48_000, vec![tone(48_000, 5_000.0, 0.5, 48_000)]).unwrap();
     let mut a = SpectrumAnalyzer::new(1024, Window::BlackmanHarris).unwrap();
-    let held = chain::render(&preset(vec![StageSpec::Rate(RateParams::hold(8_000))]), &clip).unwrap();
+    let held = render::render(&preset(vec![StageSpec::Rate(RateParams::hold(8_000))]), &clip).unwrap();
     let (k, level) = peak_bin(&a.analyze(&held.export.channels));
     assert!((a.bin_hz(k, 8_000) - 3_000.0).abs() <= a.bin_hz(1, 8_000), "alias at {} Hz", a.bin_hz(k, 8_000));
     assert!(level > -7.0, "alias level {level}");
-    let clean = chain::render(&preset(vec![StageSpec::Rate(RateParams::clean(8_000))]), &clip).unwrap();
+    let clean = render::render(&preset(vec![StageSpec::Rate(RateParams::clean(8_000))]), &clip).unwrap();
     let (_, level) = peak_bin(&a.analyze(&clean.export.channels));
     assert!(level < -6.0 - 60.0, "clean mode leaves {level} dBFS");
 }
@@ -55,7 +57,7 @@ fn clean_mode_export_and_audition_line_up_with_the_input() {
     let x = tone(48_000, 1_000.0, 0.5, 30_000);
     let clip = Clip::new(48_000, vec![x.clone()]).unwrap();
     let params = RateParams::clean(8_000);
-    let r = chain::render(&preset(vec![StageSpec::Rate(params.clone())]), &clip).unwrap();
+    let r = render::render(&preset(vec![StageSpec::Rate(params.clone())]), &clip).unwrap();
     assert_eq!(r.export.channels[0], rate::reduce(&params, 48_000, &x).unwrap());
     assert_eq!(r.audition.frames(), x.len());
     assert!(r.report.latency_frames > 0);
@@ -77,16 +79,16 @@ fn any_block_sizes_give_the_same_samples_as_one_render() {
     for rate in [RateParams::hold(7_300), RateParams::clean(11_025)] {
         let p = preset(vec![
             StageSpec::Quantize(QuantizeParams {
-                dither: stairstep::dither::DitherKind::Tpdf,
+                dither: stairstep::stages::dither::DitherKind::Tpdf,
                 ..QuantizeParams::bits(10)
             }),
             StageSpec::Rate(rate),
             StageSpec::Quantize(QuantizeParams {
-                dither: stairstep::dither::DitherKind::Tpdf,
+                dither: stairstep::stages::dither::DitherKind::Tpdf,
                 ..QuantizeParams::bits(6)
             }),
         ]);
-        let whole = chain::render(&p, &clip).unwrap();
+        let whole = render::render(&p, &clip).unwrap();
         let mut c = Chain::new(&p, 2, 48_000, n).unwrap();
         let mut out = ChainOutput::new(2);
         let mut rng = stairstep::rng::Pcg32::from_seed(9, 9);
@@ -114,15 +116,15 @@ fn any_block_sizes_give_the_same_samples_as_one_render() {
 fn at_most_one_active_rate_stage_and_bypass_skips_a_stage() {
     let clip = Clip::new(48_000, vec![tone(48_000, 100.0, 0.5, 1000)]).unwrap();
     let two = preset(vec![StageSpec::Rate(RateParams::hold(24_000)), StageSpec::Rate(RateParams::hold(12_000))]);
-    let e = chain::render(&two, &clip).unwrap_err().to_string();
+    let e = render::render(&two, &clip).unwrap_err().to_string();
     assert!(e.contains("stages[1].kind"), "{e}");
     let mut bypassed = two.clone();
     bypassed.stages[1] = StageSlot { bypass: true, ..bypassed.stages[1].clone() };
-    let r = chain::render(&bypassed, &clip).unwrap();
+    let r = render::render(&bypassed, &clip).unwrap();
     assert_eq!(r.export.sample_rate, 24_000);
     // A rate above the source is an error naming it.
     let up = preset(vec![StageSpec::Rate(RateParams::hold(96_000))]);
-    assert!(chain::render(&up, &clip).unwrap_err().to_string().contains("stages[0].rate_hz"));
+    assert!(render::render(&up, &clip).unwrap_err().to_string().contains("stages[0].rate_hz"));
 }
 
 #[test]
@@ -131,7 +133,7 @@ fn empty_and_one_sample_clips_render() {
         let clip = Clip::new(44_100, vec![vec![0.25; n]]).unwrap();
         for rate in [RateParams::hold(11_025), RateParams::clean(11_025)] {
             let p = preset(vec![StageSpec::Rate(rate), StageSpec::Quantize(QuantizeParams::bits(4))]);
-            let r = chain::render(&p, &clip).unwrap();
+            let r = render::render(&p, &clip).unwrap();
             assert_eq!(r.audition.frames(), n);
             assert_eq!(r.export.frames(), n);
         }
@@ -141,9 +143,9 @@ fn empty_and_one_sample_clips_render() {
 #[test]
 fn non_finite_inputs_are_counted_and_never_reach_the_export() {
     let clip = Clip::new(8_000, vec![vec![f32::NAN, f32::INFINITY, f32::NEG_INFINITY, 0.5]]).unwrap();
-    let r = chain::render(&preset(vec![StageSpec::Quantize(QuantizeParams::bits(8))]), &clip).unwrap();
+    let r = render::render(&preset(vec![StageSpec::Quantize(QuantizeParams::bits(8))]), &clip).unwrap();
     assert_eq!(r.report.non_finite_inputs, 3);
     assert!(r.export.channels[0].iter().all(|v| v.is_finite()));
-    let r = chain::render(&preset(vec![]), &clip).unwrap();
+    let r = render::render(&preset(vec![]), &clip).unwrap();
     assert_eq!(r.export.channels[0], vec![0.0, 1.0, -1.0, 0.5]);
 }

@@ -1,7 +1,8 @@
 //! The chain allocates nothing per block after warm-up: every stage kind, a rate stage in both modes, checked with a
 //! counting global allocator (this test binary's own; the library itself forbids unsafe code).
 
-use stairstep::chain::{Chain, ChainOutput, BLOCK};
+use stairstep::chain::{Chain, ChainOutput};
+use stairstep::stages::BLOCK;
 use stairstep::Preset;
 mod common;
 

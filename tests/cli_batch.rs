@@ -84,7 +84,7 @@ fn parallel_batch_equals_single_threaded_and_the_library() {
         let par = std::fs::read(t.path().join("par").join(f)).unwrap();
         assert_eq!(par, std::fs::read(t.path().join("one").join(f)).unwrap(), "{f}");
         let input = stairstep::io::wav::read(&std::fs::read(t.path().join("in").join(f)).unwrap()).unwrap();
-        let lib = preset.export.encode(&stairstep::chain::render(&preset, &input).unwrap().export).unwrap();
+        let lib = preset.export.encode(&stairstep::render::render(&preset, &input).unwrap().export).unwrap();
         assert_eq!(par, lib, "{f}: CLI and library differ");
     }
 }

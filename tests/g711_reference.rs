@@ -2,7 +2,7 @@
 //! the Sun Microsystems reference code), run through the project's pinned Python.
 mod common;
 
-use stairstep::companding::{alaw_to_linear, linear_to_alaw, linear_to_ulaw, ulaw_to_linear};
+use stairstep::codec::g711::{alaw_to_linear, linear_to_alaw, linear_to_ulaw, ulaw_to_linear};
 
 /// Every 16-bit sample, −32768 to 32767, as little-endian bytes.
 fn all_samples() -> (Vec<i16>, Vec<u8>) {

@@ -5,8 +5,8 @@ mod common;
 
 use stairstep::io::wav::{read, read_with_meta};
 use stairstep::io::{BitOrder, CElement, Endian, ExportFormat, ExportMeta, SampleLoop, WavEncoding};
-use stairstep::quantize::pcm_code;
 use stairstep::rng::Pcg32;
+use stairstep::sample::pcm_code;
 use stairstep::Clip;
 use std::process::Command;
 

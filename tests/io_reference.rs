@@ -10,12 +10,13 @@
 mod common;
 
 use serde_json::Value;
-use stairstep::adpcm::{self, AdpcmParams, AdpcmRoundTrip};
-use stairstep::chain::Stage;
+use stairstep::codec::ima_adpcm as adpcm;
 use stairstep::io::wav::{self, read, read_with_meta};
 use stairstep::io::{BitOrder, Endian, ExportFormat, ExportMeta, SampleLoop, WavEncoding};
-use stairstep::quantize::pcm_code;
 use stairstep::rng::Pcg32;
+use stairstep::sample::pcm_code;
+use stairstep::stages::adpcm::{AdpcmParams, AdpcmRoundTrip};
+use stairstep::stages::Stage;
 use stairstep::Clip;
 
 /// Runs Python with the file on stdin; the snippet prints one JSON value.

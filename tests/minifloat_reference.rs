@@ -3,8 +3,8 @@
 //! subnormals included), with the stage's scaling of 1/65536 and saturation where numpy gives ±inf.
 mod common;
 
-use stairstep::minifloat::{Minifloat, MinifloatParams};
 use stairstep::rng::Pcg32;
+use stairstep::stages::minifloat::{Minifloat, MinifloatParams};
 
 /// Seeded inputs: uniform around full scale, log-uniform magnitudes down to 2^−40, and arbitrary finite bit patterns.
 fn random_inputs() -> Vec<f32> {

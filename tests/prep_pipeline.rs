@@ -73,7 +73,7 @@ fn readme_example_makes_a_mono_trimmed_normalised_looped_8_bit_asset() {
     assert!(summary.starts_with("rate 11025 ch 1 bits 8"), "{summary}");
     // Trim removes the silent half-seconds bar a 5 ms margin; the loop moves with the trim: source frames
     // 44,100..132,300 minus the trimmed lead, then to 11,025 Hz (exactly a quarter).
-    let lib = stairstep::chain::render(
+    let lib = stairstep::render::render(
         &stairstep::Preset::from_json(&std::fs::read_to_string(&preset).unwrap()).unwrap(),
         &stairstep::io::wav::read(&std::fs::read(t.path().join("engine.wav")).unwrap()).unwrap(),
     )

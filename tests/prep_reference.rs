@@ -3,7 +3,8 @@
 
 mod common;
 
-use stairstep::prep::{integrated_loudness, prepare, FadeCurve, FadeParams, Normalize, PrepParams, TrimParams};
+use stairstep::analysis::loudness::integrated_loudness;
+use stairstep::prep::{prepare, FadeCurve, FadeParams, Normalize, PrepParams, TrimParams};
 use stairstep::rng::Pcg32;
 use stairstep::Clip;
 use std::f64::consts::PI;

@@ -4,8 +4,8 @@
 mod common;
 
 use proptest::prelude::*;
-use stairstep::dither::{DitherKind, Shaping};
-use stairstep::quantize::{Grid, QuantizeParams, Quantizer, Rounding};
+use stairstep::stages::dither::{DitherKind, Shaping};
+use stairstep::stages::quantize::{Grid, QuantizeParams, Quantizer, Rounding};
 
 fn quantize(p: &QuantizeParams, x: &[f32]) -> Vec<f32> {
     let mut q = Quantizer::new(p, 11, 0).unwrap();

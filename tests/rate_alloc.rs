@@ -1,7 +1,7 @@
 //! The rate stage allocates only at construction: `process`, `flush` and `reset` are checked with a counting global
 //! allocator (this test binary's own; the library itself forbids unsafe code).
 
-use stairstep::rate::{RateExpander, RateParams, RateReducer};
+use stairstep::stages::rate::{RateExpander, RateParams, RateReducer};
 mod common;
 
 use common::alloc::allocations;

@@ -1,7 +1,7 @@
 //! Clean-mode rate reduction against SciPy's polyphase resampler, `scipy.signal.resample_poly` (SciPy 1.15, pinned in
 //! tests/python/requirements.txt).
 //!
-//! For each ratio, one-second tones of amplitude ½ go through [`stairstep::rate::reduce`] (rubato's FFT resampler)
+//! For each ratio, one-second tones of amplitude ½ go through [`stairstep::stages::rate::reduce`] (rubato's FFT resampler)
 //! here and through `resample_poly` in Python, in two set-ups: SciPy's default filter (Kaiser window, β = 5, 10 taps
 //! per phase) and a Kaiser FIR designed with `scipy.signal.kaiserord`/`firwin` for 100 dB rejection with the passband
 //! ending at 0.875 of the new Nyquist frequency. Levels are the mean power of the middle 80 % of each output,
@@ -10,7 +10,7 @@
 mod common;
 
 use serde_json::{json, Value};
-use stairstep::rate::{reduce, RateParams};
+use stairstep::stages::rate::{reduce, RateParams};
 
 /// (source rate, target rate, passband tones, stopband tones): passband up to 0.875 of the new Nyquist frequency;
 /// stopband from 1.45 of it, where SciPy's default filter is out of its transition band, plus one tone just above

@@ -1,6 +1,6 @@
 //! Peak, RMS, DC, crest factor, clipped and non-finite counts; error signals and SQNR; min/max envelopes.
 
-use super::{amp_db, power_db};
+use crate::db::{amp_db, power_db};
 use serde::Serialize;
 
 /// Level statistics of one signal (all channels together).
@@ -166,7 +166,7 @@ impl SqnrAcc {
         let signal: f64 = self.signal.iter().sum();
         let error: f64 = self.error.iter().sum();
         if error == 0.0 {
-            -super::FLOOR_DB
+            -crate::db::FLOOR_DB
         } else {
             power_db(signal / error)
         }
@@ -259,7 +259,7 @@ mod tests {
     #[test]
     fn empty_and_silent_inputs_are_finite() {
         let l = Levels::measure::<Vec<f32>>(&[vec![]]);
-        assert_eq!(l.peak_dbfs, super::super::FLOOR_DB);
+        assert_eq!(l.peak_dbfs, crate::db::FLOOR_DB);
         let e = envelope(&[], 0, 0, 4);
         assert_eq!(e, vec![0.0; 8]);
         assert_eq!(sqnr_db(&[vec![0.5f32]], &[vec![0.5f32]]), 240.0);

@@ -7,7 +7,7 @@
 //! Broadband noise reads lower as the FFT grows (each bin holds less of its power): compare noise between spectra of
 //! the same size and window only.
 
-use super::{power_db, FLOOR_DB};
+use crate::db::{power_db, FLOOR_DB};
 use crate::error::{Error, Result};
 use realfft::{num_complex::Complex, RealFftPlanner, RealToComplex};
 use serde::{Deserialize, Serialize};

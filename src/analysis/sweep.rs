@@ -1,10 +1,10 @@
 //! SQNR against word length: what each bit buys for a given sound.
 
 use super::levels::sqnr_db;
-use super::power_db;
-use crate::dither::{DitherKind, Shaping};
+use crate::db::power_db;
 use crate::error::Result;
-use crate::quantize::{full_scale_sine_sqnr_db, QuantizeParams, Quantizer};
+use crate::stages::dither::{DitherKind, Shaping};
+use crate::stages::quantize::{full_scale_sine_sqnr_db, QuantizeParams, Quantizer};
 use serde::Serialize;
 
 /// One point of a sweep.

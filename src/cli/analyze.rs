@@ -3,7 +3,7 @@
 use super::{read_file, Failure, EXIT_INPUT, EXIT_USAGE};
 use serde::Serialize;
 use stairstep::analysis::{sqnr_db, sqnr_sweep, Levels, SpectrumAnalyzer, SweepPoint, Window};
-use stairstep::quantize::{Grid, QuantizeParams, Rounding};
+use stairstep::stages::quantize::{Grid, QuantizeParams, Rounding};
 use stairstep::{io, Clip};
 use std::path::{Path, PathBuf};
 

@@ -9,7 +9,7 @@ use indicatif::{ProgressBar, ProgressStyle};
 use rayon::prelude::*;
 use serde::Serialize;
 use stairstep::io::ExportFormat;
-use stairstep::{chain, io, Preset};
+use stairstep::{io, render, Preset};
 use std::collections::HashMap;
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
@@ -215,8 +215,9 @@ fn render_streaming(
     force: bool,
     progress: Option<&ProgressBar>,
 ) -> Result<Option<Measured>, Failure> {
-    use stairstep::chain::{Chain, ChainOutput, BLOCK};
+    use stairstep::chain::{Chain, ChainOutput};
     use stairstep::io::wav::stream::{StreamReader, StreamWriter};
+    use stairstep::stages::BLOCK;
     let ExportFormat::Wav { encoding, block_align: None } = export else { return Ok(None) };
     if !preset.prep.is_noop() || !StreamWriter::<std::fs::File>::supports(*encoding) {
         return Ok(None);
@@ -289,7 +290,7 @@ fn render_in_memory(
         io::wav::read_with_meta(&read_file(&job.input)?).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
     // A loop in the file's own `smpl` chunk is kept when the preset sets none; damaged metadata is a warning.
     let file_loop = meta.loops.first().map(|l| (l.start as u64, l.end as u64 + 1));
-    let r = chain::render_with_loop(preset, &clip, file_loop).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
+    let r = render::render_with_loop(preset, &clip, file_loop).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
     let bytes = r.encode(export).map_err(|e| Failure::new(EXIT_OUTPUT, e.to_string()))?;
     write_atomic(&job.output, &bytes, force)?;
     let m = Measured {

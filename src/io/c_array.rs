@@ -37,9 +37,9 @@
 
 use super::{CElement, ExportMeta};
 use crate::audio::Clip;
-use crate::chain::sanitize;
 use crate::error::{Error, Result};
-use crate::quantize::pcm_code;
+use crate::sample::pcm_code;
+use crate::sample::sanitize;
 use std::fmt::Write;
 
 const KEYWORDS: [&str; 37] = [

@@ -4,7 +4,7 @@
 //! - [`ExportFormat`]: what a preset's `export` field says, with an exact [`file_size`](ExportFormat::file_size).
 //! - [`raw`], [`c_array`]: the headerless and C source writers.
 //!
-//! Every integer encoding converts floats with [`crate::quantize::pcm_code`] (round half away from zero, clamp), after
+//! Every integer encoding converts floats with [`crate::sample::pcm_code`] (round half away from zero, clamp), after
 //! replacing NaN by 0 and ±Inf by ±1.0. So the output of an N-bit mid-tread quantizer is written without any further
 //! rounding.
 

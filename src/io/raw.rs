@@ -16,9 +16,9 @@
 
 use super::{BitOrder, Endian};
 use crate::audio::Clip;
-use crate::chain::sanitize;
 use crate::error::{Error, Result};
-use crate::quantize::pcm_code;
+use crate::sample::pcm_code;
+use crate::sample::sanitize;
 
 /// The settings of a raw export.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

@@ -4,11 +4,12 @@
 
 use stairstep::analysis::spectrum::peak_bin;
 use stairstep::analysis::{sqnr_db, SpectrumAnalyzer, Window};
-use stairstep::chain;
 use stairstep::demo;
-use stairstep::dither::DitherKind;
-use stairstep::preset::{Preset, StageSpec};
-use stairstep::quantize::{full_scale_sine_sqnr_db, QuantizeParams, Quantizer};
+use stairstep::preset::Preset;
+use stairstep::render;
+use stairstep::stages::dither::DitherKind;
+use stairstep::stages::quantize::{full_scale_sine_sqnr_db, QuantizeParams, Quantizer};
+use stairstep::stages::StageSpec;
 
 /// FNV-1a, 64-bit: a fingerprint of rendered bytes.
 pub fn fnv1a(bytes: &[u8]) -> u64 {
@@ -25,7 +26,7 @@ fn sine(n: usize, cycles_per_sample: f64, amp: f64) -> Vec<f32> {
 /// which lowers the figure by 20·log10(1 − 2^−N) dB (a hair less, so the top sample rounds down). The frequency is incommensurate with the sample rate so the error
 /// is spread over many phases.
 pub fn sqnr_follows_six_db_per_bit() {
-    use stairstep::quantize::Grid;
+    use stairstep::stages::quantize::Grid;
     for bits in [4u32, 8, 12, 16] {
         let formula = full_scale_sine_sqnr_db(bits);
         for (grid, amp, want) in [
@@ -76,7 +77,7 @@ pub fn dithered_render_is_bit_identical_across_platforms() {
         "golden",
         vec![StageSpec::Quantize(QuantizeParams { dither: DitherKind::Tpdf, ..QuantizeParams::bits(6) })],
     );
-    let r = chain::render(&p, &clip).unwrap();
+    let r = render::render(&p, &clip).unwrap();
     let bytes = p.export.encode(&r.export).unwrap();
     assert_eq!(fnv1a(&bytes), DITHERED_CHIME_FNV, "render fingerprint differs from the native one");
 }
@@ -97,7 +98,7 @@ pub fn every_stage_renders_bit_identically() {
       "export":{"type":"wav","encoding":"pcm-s16"}}"#;
     let p = Preset::from_json(json).unwrap();
     let clip = demo::demo("pad").unwrap();
-    let r = chain::render(&p, &clip).unwrap();
+    let r = render::render(&p, &clip).unwrap();
     let bytes = p.export.encode(&r.export).unwrap();
     assert_eq!(fnv1a(&bytes), EVERY_STAGE_FNV, "render fingerprint differs from the native one");
 }

@@ -1,9 +1,9 @@
 //! The WAV reader. See the [module docs](super) for what it accepts and its error/warning policy.
 
 use super::*;
-use crate::adpcm;
 use crate::audio::{Clip, MAX_CHANNELS, MAX_SAMPLE_RATE};
-use crate::companding::{alaw_to_linear, ulaw_to_linear};
+use crate::codec::g711::{alaw_to_linear, ulaw_to_linear};
+use crate::codec::ima_adpcm as adpcm;
 use crate::error::{Error, Result};
 use crate::io::{ExportMeta, SampleLoop, WavEncoding};
 

@@ -1,13 +1,13 @@
 //! The WAV writer.
 
 use super::*;
-use crate::adpcm;
 use crate::audio::Clip;
-use crate::chain::sanitize;
-use crate::companding::{linear_to_alaw, linear_to_ulaw};
+use crate::codec::g711::{linear_to_alaw, linear_to_ulaw};
+use crate::codec::ima_adpcm as adpcm;
 use crate::error::{Error, Result};
 use crate::io::{check_clip, ExportMeta, WavEncoding};
-use crate::quantize::pcm_code;
+use crate::sample::pcm_code;
+use crate::sample::sanitize;
 
 /// Bytes per sample of the byte-aligned encodings (ADPCM: 0).
 fn bytes_per_sample(enc: WavEncoding) -> usize {

@@ -13,7 +13,7 @@
 //! Wannamaker & Vanderkooy, "Quantization and Dither: A Theoretical Survey", JAES 40(5), 1992); the price is total
 //! error power 3·Δ²/12, 4.77 dB above undithered rounding.
 
-use crate::error::{check_range_f, Result};
+use crate::error::{Range, Result};
 use crate::rng::Pcg32;
 use serde::{Deserialize, Serialize};
 
@@ -63,11 +63,14 @@ pub struct Dither {
     prev: f64,
 }
 
+/// Allowed dither peak amplitude, in LSB.
+pub const PEAK_LSB: Range = Range::new(0.0, 16.0);
+
 impl Dither {
     /// New source. `peak_lsb`: peak amplitude in LSB, 0 to 16 (`None` = the kind's standard amplitude).
     pub fn new(kind: DitherKind, peak_lsb: Option<f64>, seed: u64, stream: u64) -> Result<Self> {
         let peak = peak_lsb.unwrap_or(kind.standard_peak_lsb());
-        check_range_f("dither_peak_lsb", peak, 0.0, 16.0, " LSB")?;
+        PEAK_LSB.check_f("dither_peak_lsb", peak, " LSB")?;
         let rng = Pcg32::from_seed(seed, stream);
         let mut d = Dither { kind, peak, seed, stream, rng, prev: 0.0 };
         d.reset();

@@ -19,12 +19,14 @@
 //! gives `0.5 + 0.5·tanh(1) ≈ 0.881` (−1.10 dBFS).
 //!
 //! # Non-finite input
-//! Samples first go through [`crate::chain::sanitize`]: NaN becomes 0 and ±Inf becomes ±1.0 (full scale), exactly
+//! Samples first go through [`crate::sample::sanitize`]: NaN becomes 0 and ±Inf becomes ±1.0 (full scale), exactly
 //! what the chain does before its first stage, so the stage gives the same output whether or not its input was
 //! sanitized. The output is always finite and within [−1, 1].
 
-use crate::chain::{sanitize, Stage};
-use crate::error::{check_range_f, Result};
+use crate::db::db_to_gain;
+use crate::error::{Range, Result};
+use crate::sample::sanitize;
+use crate::stages::Stage;
 use serde::{Deserialize, Serialize};
 
 /// What happens to samples beyond full scale.
@@ -112,10 +114,8 @@ fn saturate(x: f64) -> f64 {
     (SATURATE_KNEE + span * libm::tanh((a - SATURATE_KNEE) / span)).copysign(x)
 }
 
-/// Linear gain factor of `db` decibels: `10^(db/20)` (+6.0206 dB doubles).
-pub fn db_to_gain(db: f64) -> f64 {
-    libm::pow(10.0, db / 20.0)
-}
+/// Allowed `gain_db`, in dB.
+pub const GAIN_DB: Range = Range::new(-60.0, 60.0);
 
 /// Parameters of the gain-and-overflow stage.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -145,7 +145,7 @@ pub struct Gain {
 impl Gain {
     /// Validates `params` (`gain_db` within −60 to +60 dB) and builds the stage.
     pub fn new(params: &GainParams) -> Result<Self> {
-        check_range_f("gain_db", params.gain_db, -60.0, 60.0, " dB")?;
+        GAIN_DB.check_f("gain_db", params.gain_db, " dB")?;
         Ok(Gain { params: params.clone(), gain: db_to_gain(params.gain_db), clipped: 0 })
     }
 

@@ -31,14 +31,15 @@
 //! # Rounding
 //! Round to nearest, ties to even: to the value that is an even multiple of the step at the tie point (for `m ≥ 1`
 //! this is IEEE's even mantissa; with `m = 0` a tie between two powers of two goes to the larger). The sign is kept,
-//! so small negative samples become −0.0. Non-finite input first goes through [`crate::chain::sanitize`]: NaN → 0,
+//! so small negative samples become −0.0. Non-finite input first goes through [`crate::sample::sanitize`]: NaN → 0,
 //! ±Inf → ±1.0, which with the default bias saturates to ± the largest value.
 //!
 //! The arithmetic is exact power-of-two scaling and one `round_ties_even` in `f64`; no transcendental functions, so
 //! native and WebAssembly builds agree bit for bit.
 
-use crate::chain::{sanitize, Stage};
-use crate::error::{check_range_u, Error, Result};
+use crate::error::{Error, Range, Result};
+use crate::sample::sanitize;
+use crate::stages::Stage;
 use serde::{Deserialize, Serialize};
 
 /// Parameters of the minifloat quantizer. The sign bit is always present.
@@ -96,11 +97,18 @@ pub struct Minifloat {
     clipped: u64,
 }
 
+/// Allowed exponent bits.
+pub const EXPONENT_BITS: Range = Range::new(1.0, 8.0);
+/// Allowed exponent bias at the widest exponent (at `e` exponent bits: 0 to `2^e − 1`).
+pub const BIAS: Range = Range::new(0.0, 255.0);
+/// Allowed mantissa bits.
+pub const MANTISSA_BITS: Range = Range::new(0.0, 23.0);
+
 impl Minifloat {
     /// Validates `params` and builds the stage.
     pub fn new(params: &MinifloatParams) -> Result<Self> {
-        check_range_u("exponent_bits", params.exponent_bits as u64, 1, 8)?;
-        check_range_u("mantissa_bits", params.mantissa_bits as u64, 0, 23)?;
+        EXPONENT_BITS.check_u("exponent_bits", params.exponent_bits as u64)?;
+        MANTISSA_BITS.check_u("mantissa_bits", params.mantissa_bits as u64)?;
         let e = params.exponent_bits as i32;
         let m = params.mantissa_bits as i32;
         let ieee_bias = (1 << (e - 1)) - 1;

@@ -20,8 +20,10 @@
 //! See [`crate::dither`]. Dither is added in LSB units before rounding; the error-feedback loop subtracts filtered past
 //! errors before the dither is added.
 
-use crate::dither::{Dither, DitherKind, NoiseShaper, Shaping};
-use crate::error::{check_range_u, Error, Result};
+use crate::db::power_db;
+use crate::error::{Error, Range, Result};
+use crate::stages::dither::{Dither, DitherKind, NoiseShaper, Shaping};
+use crate::stages::Stage;
 use serde::{Deserialize, Serialize};
 
 /// Grid type of a uniform quantizer.
@@ -45,6 +47,11 @@ pub enum Rounding {
     /// Down to the level below (floor).
     Truncate,
 }
+
+/// Allowed word length, in bits.
+pub const BITS: Range = Range::new(1.0, 24.0);
+/// Allowed number of levels (2 to 2^24).
+pub const LEVELS: Range = Range::new(2.0, 16_777_216.0);
 
 /// Parameters of the uniform quantizer. Give either `bits` or `levels`.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -92,11 +99,11 @@ impl QuantizeParams {
     pub fn level_count(&self) -> Result<u32> {
         match self.levels {
             Some(l) => {
-                check_range_u("levels", l as u64, 2, 1 << 24)?;
+                LEVELS.check_u("levels", l as u64)?;
                 Ok(l)
             }
             None => {
-                check_range_u("bits", self.bits as u64, 1, 24)?;
+                BITS.check_u("bits", self.bits as u64)?;
                 Ok(1u32 << self.bits)
             }
         }
@@ -324,24 +331,31 @@ fn round_clamped_f32(t: f32, lo: f32, hi: f32, truncate: bool) -> f32 {
     }
 }
 
+impl Stage for Quantizer {
+    fn process(&mut self, buf: &mut [f32]) {
+        Quantizer::process(self, buf)
+    }
+    fn reset(&mut self) {
+        Quantizer::reset(self)
+    }
+    fn clipped(&self) -> u64 {
+        Quantizer::clipped(self)
+    }
+    fn theory_sqnr_db(&self, input_ms: f64) -> Option<f64> {
+        Some(power_db(input_ms / Quantizer::theory_error_power(self)))
+    }
+}
+
 /// Theoretical SQNR in dB of an ideal `bits`-bit rounding quantizer for a full-scale sine: `6.02·N + 1.76`
 /// (exactly `20·log10(2^N) + 10·log10(1.5)`).
 pub fn full_scale_sine_sqnr_db(bits: u32) -> f64 {
     20.0 * (2f64).powi(bits as i32).log10() + 10.0 * 1.5f64.log10()
 }
 
-/// The N-bit PCM code for a float sample: `round(x · 2^(N−1))`, clamped to `−2^(N−1) … 2^(N−1)−1`, NaN → 0.
-/// For output of an N-bit mid-tread [`Quantizer`] this is exact.
-#[inline]
-pub fn pcm_code(x: f32, bits: u32) -> i32 {
-    let scale = (1u64 << (bits - 1)) as f64;
-    let x = if x.is_nan() { 0.0 } else { x as f64 };
-    (x * scale).round().clamp(-scale, scale - 1.0) as i32
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::sample::pcm_code;
 
     fn q(bits: u32) -> Quantizer {
         Quantizer::new(&QuantizeParams::bits(bits), 0, 0).unwrap()

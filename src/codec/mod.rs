@@ -1,0 +1,5 @@
+//! Codecs written by hand, bit for bit as their references: integer samples in, codes out, and back. They know
+//! nothing of stages, chains or files; the stages (hear the codec) and the file writers (store its codes) use them.
+
+pub mod g711;
+pub mod ima_adpcm;
