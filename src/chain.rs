@@ -2,7 +2,7 @@
 //!
 //! A chain is built from a [`Preset`] for a channel count and a source rate: construction validates every stage
 //! (errors name `stages[i].param`) and allocates everything. Then it is fed blocks of at most [`BLOCK`] frames
-//! ([`Chain::process_block`], then [`Chain::finish`]), or a whole clip at once ([`Chain::render`]); both give the same
+//! ([`Chain::process_block`], then [`Chain::finish`]), or a whole clip at once ([`Chain::process_clip`]); both give the same
 //! samples.
 //!
 //! # Rates and alignment

@@ -89,7 +89,7 @@ pub(crate) fn check_range_u(name: &str, v: u64, lo: u64, hi: u64) -> Result<()> 
 }
 
 /// The allowed range of a numeric parameter, stated once beside its stage and read by the validation, the page's
-/// forms and the CLI's help (see [`crate::stages::schema`]).
+/// forms and the CLI's help (see [`crate::stages::schema()`]).
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
 pub struct Range {
     /// Smallest allowed value.

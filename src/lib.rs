@@ -8,7 +8,7 @@
 //! 1. shared words: [`sample`] (sanitize, PCM codes), [`db`], [`audio`] (the [`Clip`]), [`error`], [`rng`];
 //! 2. [`codec`]: G.711 and IMA ADPCM, integer samples in, codes out;
 //! 3. [`stages`]: one file per stage, the [`stages::Stage`] trait, the [`stages::StageSpec`] that names them all, and
-//!    the [`stages::schema`] of their fields;
+//!    the [`stages::schema()`] of their fields;
 //! 4. [`analysis`]: levels, SQNR, spectra, loudness, headroom, the SQNR sweep;
 //! 5. [`prep`]: asset preparation (channels, trim, fades, normalisation, loop points);
 //! 6. [`io`]: WAV reading and writing, raw and C-array exports;

@@ -6,7 +6,7 @@ use crate::sample::sanitize;
 use serde::Serialize;
 
 /// Headroom of a clip against an N-bit PCM grid (step `Δ = 2^(1−N)`, codes `−2^(N−1) … 2^(N−1)−1`, as
-/// [`crate::quantize`]).
+/// [`crate::stages::quantize`]).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct Headroom {
     /// Word length used, 1 to 24.

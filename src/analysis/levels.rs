@@ -113,7 +113,7 @@ impl LevelsAcc {
     }
 }
 
-/// Accumulates an SQNR from (reference, output) sample pairs (for streams), in [`LANES`] partial sums like
+/// Accumulates an SQNR from (reference, output) sample pairs (for streams), in `LANES` (4) partial sums like
 /// [`LevelsAcc`].
 #[derive(Debug, Clone, Default)]
 pub struct SqnrAcc {

@@ -3,7 +3,7 @@
 use crate::audio::Clip;
 
 /// Integrated loudness in LUFS (ITU-R BS.1770-4 with its gates, EBU R 128 mode I) measured by the `ebur128` crate at
-/// the clip's own rate, with the channel map described at [`Normalize::Loudness`].
+/// the clip's own rate, with the channel map described at [`crate::prep::Normalize::Loudness`].
 ///
 /// `None` when it cannot be measured: an invalid clip, a rate below [`MIN_LOUDNESS_RATE`] (3,364 Hz), less than
 /// 400 ms of sound, every block below the −70 LUFS absolute gate (silence), or non-finite samples.

@@ -3,6 +3,7 @@
 mod analyze;
 mod render;
 mod serve;
+mod stages;
 
 use clap::{Parser, Subcommand};
 use stairstep::{demo, io, preset, Preset};
@@ -62,6 +63,15 @@ enum Command {
     Presets {
         /// Print this preset's JSON.
         name: Option<String>,
+    },
+    /// The stage kinds a preset's chain can hold, with each field's unit, range and default.
+    #[command(after_help = "Examples:\n  stairstep stages\n  stairstep stages quantize\n  stairstep stages --json")]
+    Stages {
+        /// Only this kind.
+        kind: Option<String>,
+        /// Print the schema as JSON (what the page builds its forms from).
+        #[arg(long)]
+        json: bool,
     },
     /// Serve the offline page on 127.0.0.1 and print its URL.
     Serve {
@@ -166,6 +176,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
             println!("{}", p.to_json());
             Ok(())
         }
+        Command::Stages { kind, json } => stages::run(kind.as_deref(), json),
         Command::Serve { page, port } => serve::serve(&page, port),
     }
 }

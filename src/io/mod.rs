@@ -36,7 +36,7 @@ pub enum WavEncoding {
     Mulaw,
     /// G.711 A-law, 8 bits (format tag 6, with a `fact` chunk), as `audioop.lin2alaw`.
     Alaw,
-    /// IMA ADPCM, 4 bits (format tag 0x11), see [`crate::adpcm`].
+    /// IMA ADPCM, 4 bits (format tag 0x11), see [`crate::codec::ima_adpcm`].
     ImaAdpcm,
 }
 

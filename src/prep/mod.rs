@@ -218,7 +218,7 @@ pub enum Normalize {
     /// Measured by the `ebur128` crate at the clip's own rate with its default channel map: one channel counts once;
     /// two are L and R; 3: L R C; 4: L R Ls Rs; 5: L R C Ls Rs; 6: L R C LFE Ls Rs with the LFE not counted; channels
     /// after the sixth are not counted. Needs at least 400 ms of sound (one gating block) and a rate of at least
-    /// [`MIN_LOUDNESS_RATE`] (3,364 Hz: below it the K-weighting shelf at 1.68 kHz is above the Nyquist frequency);
+    /// [`crate::analysis::loudness::MIN_LOUDNESS_RATE`] (3,364 Hz: below it the K-weighting shelf at 1.68 kHz is above the Nyquist frequency);
     /// a clip whose every block is below the −70 LUFS absolute gate counts as silent. No limiter follows: a loud
     /// target can push peaks beyond full scale (the report says so in its notes and in `peak_dbfs_after`).
     ///
@@ -350,7 +350,7 @@ pub struct PrepReport {
     pub gain_db: f64,
     /// Integrated loudness in LUFS of the sound entering the normalisation step (after channels, trim, loop crossfade
     /// and fades), `None` when it cannot be measured (shorter than 400 ms, silent, or a rate below
-    /// [`MIN_LOUDNESS_RATE`]).
+    /// [`crate::analysis::loudness::MIN_LOUDNESS_RATE`]).
     pub loudness_lufs_before: Option<f64>,
     /// Integrated loudness in LUFS of the result, `None` when it cannot be measured.
     pub loudness_lufs_after: Option<f64>,

@@ -6,7 +6,7 @@ use crate::db::amp_db_portable as amp_db;
 use crate::sample::sanitize;
 use std::f64::consts::FRAC_PI_2;
 
-/// Runs the preparation steps of `params` on `clip` (see the [module docs](self) for the order).
+/// Runs the preparation steps of `params` on `clip` (see the [module docs](super) for the order).
 ///
 /// # Errors
 /// A parameter out of range; an invalid clip (rate, channel count, unequal lengths); a trim that would remove

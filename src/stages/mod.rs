@@ -3,11 +3,11 @@
 //! changes the rate, as [`rate::RateReducer`] and [`rate::RateExpander`]).
 //!
 //! This module knows every stage: [`StageSpec`] is a stage's kind and parameters as a preset writes them,
-//! [`build`] makes the stage for one channel, [`validate`] checks parameters without a source rate, and [`schema`]
+//! [`build`] makes the stage for one channel, [`validate`] checks parameters without a source rate, and [`schema()`]
 //! describes every kind's fields (units, ranges, defaults) for the page's forms and the CLI's help.
 //!
 //! To add a stage: a file here with its params struct and `impl Stage`, a variant in [`StageSpec`], an arm in
-//! [`build`], and its fields in [`schema`].
+//! [`build`], and its fields in [`mod@schema`].
 
 pub mod adpcm;
 pub mod compand;

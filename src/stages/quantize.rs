@@ -3,7 +3,7 @@
 //! # Scaling and the +1.0 convention
 //! Samples are floats where full scale is ±1.0. With `L` levels the step is `Δ = 2/L`. For `N` bits (`L = 2^N`) the
 //! mid-tread output is exactly `code · Δ` for the integer codes `−2^(N−1) … 2^(N−1)−1` of N-bit two's-complement PCM,
-//! so an exporter recovers the codes with [`pcm_code`] without any further rounding. The grid is asymmetric like PCM:
+//! so an exporter recovers the codes with [`crate::sample::pcm_code`] without any further rounding. The grid is asymmetric like PCM:
 //! −1.0 is a level, +1.0 is not; +1.0 becomes the top code `2^(N−1)−1` (that is `1 − Δ`) and counts as clipped.
 //!
 //! # Grids
@@ -17,7 +17,7 @@
 //! two's-complement word), which biases the error by −Δ/2.
 //!
 //! # Dither and noise shaping
-//! See [`crate::dither`]. Dither is added in LSB units before rounding; the error-feedback loop subtracts filtered past
+//! See [`crate::stages::dither`]. Dither is added in LSB units before rounding; the error-feedback loop subtracts filtered past
 //! errors before the dither is added.
 
 use crate::db::power_db;
@@ -107,12 +107,6 @@ impl QuantizeParams {
                 Ok(1u32 << self.bits)
             }
         }
-    }
-
-    /// Whether the output maps onto N-bit PCM codes (power-of-two levels, mid-tread).
-    pub fn pcm_bits(&self) -> Option<u32> {
-        let l = self.level_count().ok()?;
-        (l.is_power_of_two() && self.grid == Grid::MidTread).then(|| l.trailing_zeros())
     }
 }
 

@@ -29,7 +29,7 @@
 //! - PCM: `fmt ` of 16 bytes, then `data`: the canonical 44-byte header.
 //! - float32, μ-law, A-law: `fmt ` of 18 bytes (cbSize 0), `fact` (frames), `data`.
 //! - IMA ADPCM: `fmt ` of 20 bytes (cbSize 2, samplesPerBlock), `fact` (true frame count), `data` of whole blocks
-//!   (see [`crate::adpcm`] for the layout, default block size and padding of the last block).
+//!   (see [`crate::codec::ima_adpcm`] for the layout, default block size and padding of the last block).
 //! - With loops, a `smpl` chunk follows `data` (so readers that assume a 44-byte PCM header still work).
 //!
 //! Plain PCM tags are used even for 24/32 bits and more than two channels (no `WAVE_FORMAT_EXTENSIBLE`): every
