@@ -209,7 +209,7 @@ impl Chain {
                         Node::Rate { reducer, expander }
                     }
                     spec => Node::Plain(
-                        stages::build(spec, preset.seed, (i * 64 + ch) as u64)
+                        stages::build(spec, export_rate, preset.seed, (i * 64 + ch) as u64)
                             .map_err(at)?
                             .expect("a rate-keeping stage"),
                     ),

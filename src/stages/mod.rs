@@ -12,6 +12,7 @@
 pub mod adpcm;
 pub mod compand;
 pub mod dither;
+pub mod filter;
 pub mod g711;
 pub mod gain;
 pub mod minifloat;
@@ -44,11 +45,14 @@ pub enum StageSpec {
     Minifloat(minifloat::MinifloatParams),
     /// IMA ADPCM (4-bit) encode then decode: hear what an ADPCM export will contain.
     Adpcm(adpcm::AdpcmParams),
+    /// A biquad filter (or a cascade) from the Audio EQ Cookbook: band-limit before a hold, tame images after it.
+    Filter(filter::FilterParams),
 }
 
 /// Builds a rate-keeping stage for one channel; `None` for the rate stage (the chain builds that itself, against the
-/// source rate). `seed` is the preset's; `stream` distinguishes channels and stages for seeded generators.
-pub fn build(spec: &StageSpec, seed: u64, stream: u64) -> Result<Option<Box<dyn Stage>>> {
+/// source rate). `sample_rate` is the rate where the stage runs (the source rate before the rate stage, the export
+/// rate after it); `seed` is the preset's; `stream` distinguishes channels and stages for seeded generators.
+pub fn build(spec: &StageSpec, sample_rate: u32, seed: u64, stream: u64) -> Result<Option<Box<dyn Stage>>> {
     Ok(Some(match spec {
         StageSpec::Gain(p) => Box::new(gain::Gain::new(p)?),
         StageSpec::Quantize(p) => Box::new(quantize::Quantizer::new(p, seed, stream)?),
@@ -56,6 +60,7 @@ pub fn build(spec: &StageSpec, seed: u64, stream: u64) -> Result<Option<Box<dyn 
         StageSpec::Compand(p) => Box::new(compand::Compander::new(p)?),
         StageSpec::Minifloat(p) => Box::new(minifloat::Minifloat::new(p)?),
         StageSpec::Adpcm(p) => Box::new(adpcm::AdpcmRoundTrip::new(p)?),
+        StageSpec::Filter(p) => Box::new(filter::Filter::new(p, sample_rate)?),
         StageSpec::Rate(_) => return Ok(None),
     }))
 }
@@ -65,6 +70,7 @@ pub fn build(spec: &StageSpec, seed: u64, stream: u64) -> Result<Option<Box<dyn 
 pub fn validate(spec: &StageSpec) -> Result<()> {
     match spec {
         StageSpec::Rate(p) => rate::RATE_HZ.check_u("rate_hz", p.rate_hz as u64),
-        other => build(other, 0, 0).map(|_| ()),
+        StageSpec::Filter(p) => p.validate(),
+        other => build(other, crate::audio::MAX_SAMPLE_RATE, 0, 0).map(|_| ()),
     }
 }

@@ -4,7 +4,7 @@
 //! the constants the stages validate with, and the defaults are the stages' own `Default` parameters, serialised.
 
 use crate::error::Range;
-use crate::stages::{adpcm, compand, dither, gain, minifloat, quantize, rate, StageSpec};
+use crate::stages::{adpcm, compand, dither, filter, gain, minifloat, quantize, rate, StageSpec};
 use serde::Serialize;
 use serde_json::Value;
 
@@ -194,6 +194,19 @@ pub fn schema() -> Vec<Kind> {
                 },
             ],
         ),
+        with_defaults(
+            "filter",
+            "Filter (biquad)",
+            StageSpec::Filter(Default::default()),
+            vec![
+                choice("shape", "Shape", &["lowpass", "highpass", "bandpass", "lowshelf", "highshelf", "peaking"]),
+                num("freq_hz", "Frequency", "float", "Hz", filter::FREQ_HZ).step(1.0).slider(20.0, 20_000.0),
+                num("q", "Q", "float", "", filter::Q).step(0.01).slider(0.1, 10.0),
+                num("gain_db", "Gain", "float", "dB", filter::GAIN_DB)
+                    .when("shape", &["lowshelf", "highshelf", "peaking"]),
+                num("sections", "Sections", "int", "", filter::SECTIONS),
+            ],
+        ),
     ]
 }
 
@@ -232,7 +245,7 @@ mod tests {
             }
         }
         let names: Vec<&str> = kinds.iter().map(|k| k.kind).collect();
-        assert_eq!(names, ["gain", "rate", "quantize", "g711", "compand", "adpcm", "minifloat"]);
+        assert_eq!(names, ["gain", "rate", "quantize", "g711", "compand", "adpcm", "minifloat", "filter"]);
     }
 
     /// The ranges are the ones validation enforces: the ends pass, one step beyond fails, naming the field.
