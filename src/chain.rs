@@ -30,8 +30,8 @@ pub const UNBOUNDED: usize = usize::MAX;
 
 /// A stage built for one channel.
 enum Node {
-    /// Keeps the rate.
-    Plain(Box<dyn Stage>),
+    /// Keeps the rate; `mix` below 1 blends its output with its input (see [`crate::preset::StageSlot::mix`]).
+    Plain { stage: Box<dyn Stage>, mix: f64 },
     /// Changes the rate: the reducer, and the expander that brings the final signal back for audition.
     Rate { reducer: RateReducer, expander: RateExpander },
 }
@@ -128,6 +128,15 @@ struct Lane {
     audition_buf: Vec<f32>,
     export_align: Aligner,
     audition_align: Aligner,
+    /// The chain's mix (see [`Preset::mix`]) and what it needs below 1: the dry block at the source rate, and with
+    /// a rate stage its own reducer, aligned exactly as the wet one (same parameters, same blocks, same latency).
+    mix: f64,
+    dry: Vec<f32>,
+    dry_rate: Option<(RateReducer, Aligner)>,
+    dry_reduced: Vec<f32>,
+    dry_export: Vec<f32>,
+    /// A stage's input, kept for its own mix.
+    stage_dry: Vec<f32>,
     /// Input and audition samples waiting for their partner (the hold expander can run ahead of the input by part
     /// of a span, a filter behind it), paired in order for the SQNR.
     pending_input: VecDeque<f32>,
@@ -208,11 +217,12 @@ impl Chain {
                         rate_at = Some(i);
                         Node::Rate { reducer, expander }
                     }
-                    spec => Node::Plain(
-                        stages::build(spec, export_rate, preset.seed, (i * 64 + ch) as u64)
+                    spec => Node::Plain {
+                        stage: stages::build(spec, export_rate, preset.seed, (i * 64 + ch) as u64)
                             .map_err(at)?
                             .expect("a rate-keeping stage"),
-                    ),
+                        mix: slot.mix,
+                    },
                 };
                 nodes.push(Some(node));
             }
@@ -226,6 +236,15 @@ impl Chain {
                     _ => (0, 0, 0, 0),
                 };
             let export_frames = reduced_len(sample_rate, export_rate, frames);
+            // The chain's dry signal through the rate stage alone: the same reducer, aligned the same way.
+            let dry_rate = match rate_at.map(|i| &preset.stages[i].stage) {
+                Some(StageSpec::Rate(p)) if preset.mix != 1.0 => {
+                    Some((RateReducer::new(p, sample_rate, BLOCK)?, Aligner::new(export_delay, export_frames)))
+                }
+                _ => None,
+            };
+            let scratch = max_reduced.max(BLOCK);
+            let stage_mixes = preset.stages.iter().any(|s| !s.bypass && s.mix != 1.0);
             lanes.push(Lane {
                 nodes,
                 rate_at,
@@ -236,6 +255,12 @@ impl Chain {
                 audition_buf: Vec::with_capacity(max_expanded.max(BLOCK)),
                 export_align: Aligner::new(export_delay, export_frames),
                 audition_align: Aligner::new(audition_delay, frames),
+                mix: preset.mix,
+                dry: Vec::with_capacity(if preset.mix != 1.0 { BLOCK } else { 0 }),
+                dry_reduced: vec![0.0; if dry_rate.is_some() { max_reduced } else { 0 }],
+                dry_export: Vec::with_capacity(if dry_rate.is_some() { scratch } else { 0 }),
+                dry_rate,
+                stage_dry: Vec::with_capacity(if stage_mixes { scratch } else { 0 }),
                 // Enough for the rate stage's largest lead or lag (a hold span; clean mode's FFT blocks), so a
                 // stream never grows them.
                 pending_input: VecDeque::with_capacity(2 * (BLOCK + max_expanded) + audition_delay),
@@ -317,7 +342,7 @@ impl Chain {
                 self.lanes
                     .iter()
                     .map(|l| match &l.nodes[i] {
-                        Some(Node::Plain(s)) => s.clipped(),
+                        Some(Node::Plain { stage, .. }) => stage.clipped(),
                         _ => 0,
                     })
                     .sum()
@@ -349,7 +374,7 @@ impl Chain {
         let active: Vec<&Node> = self.lanes[0].nodes.iter().flatten().collect();
         match active.as_slice() {
             [] => note("no active stage: the output equals the input"),
-            [Node::Plain(only)] => {
+            [Node::Plain { stage: only, .. }] => {
                 // Mean square of the input, from its sine-referenced RMS (rms_dbfs is 10·log10(2·ms)).
                 let ms = 10f64.powf(input.rms_dbfs / 10.0) / 2.0;
                 match only.theory_sqnr_db(ms) {
@@ -411,11 +436,14 @@ impl Lane {
     fn run(&mut self, flushing: bool) {
         self.export_buf.clear();
         self.audition_buf.clear();
+        if self.mix != 1.0 {
+            self.dry.clear();
+            self.dry.extend_from_slice(&self.work);
+        }
         let Some(r) = self.rate_at else {
-            for node in self.nodes.iter_mut().flatten() {
-                if let Node::Plain(s) = node {
-                    s.process(&mut self.work);
-                }
+            run_stages(&mut self.nodes, &mut self.work, &mut self.stage_dry);
+            if self.mix != 1.0 {
+                blend(&mut self.work, &self.dry, self.mix);
             }
             self.export_buf.extend_from_slice(self.export_align.take(&self.work));
             self.audition_buf.extend_from_slice(self.audition_align.take(&self.work));
@@ -424,20 +452,25 @@ impl Lane {
         let (before, rest) = self.nodes.split_at_mut(r);
         let (rate, after) = rest.split_first_mut().expect("the rate node is in range");
         let Some(Node::Rate { reducer, expander }) = rate else { unreachable!("rate_at points at the rate node") };
-        for node in before.iter_mut().flatten() {
-            if let Node::Plain(s) = node {
-                s.process(&mut self.work);
-            }
-        }
+        run_stages(before, &mut self.work, &mut self.stage_dry);
         let got =
             if flushing { reducer.flush(&mut self.reduced) } else { reducer.process(&self.work, &mut self.reduced) };
         // The export: the reduced stream without the reducer's latency, cut at the export length, then the stages
         // behind the rate stage, at the reduced rate.
         self.export_buf.extend_from_slice(self.export_align.take(&self.reduced[..got]));
-        for node in after.iter_mut().flatten() {
-            if let Node::Plain(s) = node {
-                s.process(&mut self.export_buf);
-            }
+        run_stages(after, &mut self.export_buf, &mut self.stage_dry);
+        if let Some((dry_reducer, dry_align)) = &mut self.dry_rate {
+            // The dry signal through the rate stage alone; same parameters, blocks and alignment as the wet one, so
+            // the two line up sample for sample.
+            let got = if flushing {
+                dry_reducer.flush(&mut self.dry_reduced)
+            } else {
+                dry_reducer.process(&self.dry, &mut self.dry_reduced)
+            };
+            self.dry_export.clear();
+            self.dry_export.extend_from_slice(dry_align.take(&self.dry_reduced[..got]));
+            debug_assert_eq!(self.dry_export.len(), self.export_buf.len());
+            blend(&mut self.export_buf, &self.dry_export, self.mix);
         }
         // The audition: the export brought back to the source rate, without the expander's latency.
         let made = expander.process(&self.export_buf, &mut self.expanded);
@@ -461,5 +494,29 @@ impl Lane {
         self.pending_audition.drain(..n);
         out.export[ch].extend_from_slice(&self.export_buf);
         out.audition[ch].extend_from_slice(&self.audition_buf);
+    }
+}
+
+/// Runs the rate-keeping stages of `nodes` over `buf` in order; a stage with a mix below 1 is blended with its own
+/// input (kept in `scratch`, whose capacity covers any block).
+fn run_stages(nodes: &mut [Option<Node>], buf: &mut [f32], scratch: &mut Vec<f32>) {
+    for node in nodes.iter_mut().flatten() {
+        if let Node::Plain { stage, mix } = node {
+            if *mix == 1.0 {
+                stage.process(buf);
+            } else {
+                scratch.clear();
+                scratch.extend_from_slice(buf);
+                stage.process(buf);
+                blend(buf, scratch, *mix);
+            }
+        }
+    }
+}
+
+/// `wet = mix·wet + (1 − mix)·dry`, in `f64`, rounded once to `f32`.
+fn blend(wet: &mut [f32], dry: &[f32], mix: f64) {
+    for (w, &d) in wet.iter_mut().zip(dry) {
+        *w = (mix * *w as f64 + (1.0 - mix) * d as f64) as f32;
     }
 }

@@ -13,7 +13,7 @@
 //! Every stage object has `kind` and an optional `bypass` (default false); its other fields are the stage's
 //! parameters, each with a default. Unknown fields are errors, so a typo never passes silently.
 
-use crate::error::{Error, Result};
+use crate::error::{Error, Range, Result};
 use crate::io::ExportFormat;
 use crate::prep::PrepParams;
 use crate::stages::quantize::QuantizeParams;
@@ -31,6 +31,11 @@ pub struct StageSlot {
     /// When true the stage is kept in the chain but not applied.
     #[serde(default, skip_serializing_if = "std::ops::Not::not")]
     pub bypass: bool,
+    /// Blend of the stage's output with its own input, 0 (input only) to 1 (output only, the default): equal-gain,
+    /// `mix·wet + (1 − mix)·dry`, sample for sample (a stage that keeps the rate has no latency to align). Not
+    /// allowed on the rate stage (its input and output run at different rates): use the chain's `mix`.
+    #[serde(default = "full_mix", skip_serializing_if = "is_full_mix")]
+    pub mix: f64,
     /// The stage.
     #[serde(flatten)]
     pub stage: StageSpec,
@@ -38,7 +43,7 @@ pub struct StageSlot {
 
 impl From<StageSpec> for StageSlot {
     fn from(stage: StageSpec) -> Self {
-        StageSlot { bypass: false, stage }
+        StageSlot { bypass: false, mix: 1.0, stage }
     }
 }
 
@@ -64,6 +69,13 @@ pub struct Preset {
     /// The chain, in processing order.
     #[serde(default)]
     pub stages: Vec<StageSlot>,
+    /// Blend of the chain's output with its input, 0 (input only) to 1 (processed only, the default): equal-gain,
+    /// `mix·wet + (1 − mix)·dry`. Equal gain rather than equal power because the two signals are strongly correlated
+    /// (the crushed sound is the dry sound plus an error), so a linear crossfade keeps the level. With a rate stage
+    /// the dry signal is the input through that rate stage alone, so the export keeps one rate and the blend is of
+    /// everything but the rate change; the rate stage's latency applies to both alike, so they stay aligned.
+    #[serde(default = "full_mix", skip_serializing_if = "is_full_mix")]
+    pub mix: f64,
     /// How to write the result.
     #[serde(default)]
     pub export: ExportFormat,
@@ -72,6 +84,17 @@ pub struct Preset {
 fn default_seed() -> u64 {
     1
 }
+
+fn full_mix() -> f64 {
+    1.0
+}
+
+fn is_full_mix(mix: &f64) -> bool {
+    *mix == 1.0
+}
+
+/// Allowed values of a `mix`.
+pub const MIX: Range = Range::new(0.0, 1.0);
 
 impl Default for Preset {
     fn default() -> Self {
@@ -83,6 +106,7 @@ impl Default for Preset {
             seed: default_seed(),
             prep: PrepParams::default(),
             stages: Vec::new(),
+            mix: 1.0,
             export: ExportFormat::default(),
         }
     }
@@ -120,8 +144,18 @@ impl Preset {
             return Err(Error::param("version", self.version, format!("1..={PRESET_VERSION}")));
         }
         self.prep.validate().map_err(|e| e.at("prep"))?;
+        MIX.check_f("mix", self.mix, "")?;
         for (i, slot) in self.stages.iter().enumerate() {
-            stages::validate(&slot.stage).map_err(|e| e.at(&format!("stages[{i}]")))?;
+            let at = |e: Error| e.at(&format!("stages[{i}]"));
+            stages::validate(&slot.stage).map_err(at)?;
+            MIX.check_f("mix", slot.mix, "").map_err(at)?;
+            if slot.mix != 1.0 && matches!(slot.stage, StageSpec::Rate(_)) {
+                return Err(at(Error::param(
+                    "mix",
+                    slot.mix,
+                    "1 on a rate stage (its input and output run at different rates; use the chain's mix)",
+                )));
+            }
         }
         self.export.validate().map_err(|e| e.at("export"))
     }
