@@ -1,5 +1,5 @@
 // Stairstep crusher: an AudioWorklet module with the DSP core (WebAssembly) inside; needs no other file.
-// stairstep-source-hash: d4d049acb3af23d1a9a255f5f350e5a35796f2b8fe3a1ee2a2977a85fbbd4d82
+// stairstep-source-hash: 2d57dbfde365621e625a2ab7006549d2889aab23b82f26a23d5c0437873b1ed0
 //   await ctx.audioWorklet.addModule('stairstep-worklet.js');
 //   const node = new AudioWorkletNode(ctx, 'stairstep-crusher', { outputChannelCount: [2],
 //     processorOptions: { preset: 'handheld' } });
