@@ -9,7 +9,7 @@ import { renderChain, markStageErrors, setupStageTools } from './chain-editor.js
 import { renderPrep, drawPrepReport } from './prep-panel.js';
 import { renderExport, drawBudget, doExport } from './export.js';
 import { setupPresetTools, setBuiltinPresets } from './presets.js';
-import { drawWave, setupWaveform, refreshEnvelope, tick } from './views/waveform.js';
+import { drawWave, setupWaveform, refreshEnvelope, tick, showLoopFields } from './views/waveform.js';
 import { drawSpectrum, spectrumReadout } from './views/spectrum.js';
 import { drawMeters } from './views/meters.js';
 import { drawSweep, requestSweep } from './views/sweep.js';
@@ -26,23 +26,64 @@ function drawAll() {
 }
 
 hooks.presetChanged = () => live.presetChanged();
-hooks.rendered = () => { markStageErrors(null); drawAll(); audio.refresh(); };
-hooks.refused = (message) => markStageErrors(message);
-hooks.sourceLoaded = () => { audio.newSource(); requestSweep(); };
+hooks.rendered = () => { markStageErrors(null); showStale(null); drawAll(); audio.refresh(); };
+hooks.refused = (message) => { const text = markStageErrors(message); showStale(text); return text; };
+hooks.sourceLoaded = () => { audio.newSource(); requestSweep(); showLoopFields(); };
+
+// While the core refuses a value, the views keep the last accepted render: they say so and are greyed.
+function showStale(text) {
+  const note = $('stale-note');
+  $('views').classList.toggle('stale', !!text);
+  note.hidden = !text;
+  note.textContent = text ? `The views show the last accepted settings. ${text}` : '';
+}
 audio.onstart = tick;
 
 function setupViews() {
   setupWaveform();
   $('spectrum').addEventListener('pointermove', spectrumReadout);
-  window.addEventListener('resize', () => { refreshEnvelope(); drawSpectrum(); });
+  // The views share the window's height, so they follow any change of their own size (window, meters wrapping).
+  const sized = new ResizeObserver((entries) => {
+    for (const e of entries) {
+      const id = e.target.firstElementChild.id;
+      if (id === 'wave') refreshEnvelope(); else if (id === 'spectrum') drawSpectrum(); else drawSweep();
+    }
+  });
+  document.querySelectorAll('.views .plot').forEach((p) => sized.observe(p));
+}
+
+// The Chain / Preparation tabs: arrow keys, Home and End move between them (one tab stop for the list).
+function setupTabs() {
+  const tabs = [...document.querySelectorAll('[role=tab]')];
+  const select = (tab) => {
+    for (const t of tabs) {
+      const on = t === tab;
+      t.setAttribute('aria-selected', String(on));
+      t.tabIndex = on ? 0 : -1;
+      $(t.getAttribute('aria-controls')).hidden = !on;
+    }
+  };
+  tabs.forEach((tab, i) => {
+    tab.addEventListener('click', () => select(tab));
+    tab.addEventListener('keydown', (ev) => {
+      const j = { ArrowRight: i + 1, ArrowLeft: i - 1, Home: 0, End: tabs.length - 1 }[ev.key];
+      if (j === undefined) return;
+      ev.preventDefault();
+      const next = tabs[(j + tabs.length) % tabs.length];
+      select(next);
+      next.focus();
+    });
+  });
 }
 
 function setupAudition() {
   $('play').onclick = () => { if (live.mode !== 'off') { live.stop(); $('live').value = 'off'; } audio.toggle(); };
   $('live').onchange = () => live.start($('live').value);
   document.addEventListener('keydown', (ev) => {
-    const typing = ev.target.closest('input[type=number], input[type=text], select, textarea');
-    if (ev.code === 'Space' && !typing) { ev.preventDefault(); audio.toggle(); }
+    // The space bar plays and stops, except where it already means something: typing, and every control that a
+    // space activates (buttons, check boxes, radio buttons, tabs) or moves (sliders).
+    const control = ev.target.closest('input, select, textarea, button, [role=tab], a[href], dialog');
+    if (ev.code === 'Space' && !control) { ev.preventDefault(); audio.toggle(); }
   });
   document.querySelectorAll('input[name=listen]').forEach((r) => r.addEventListener('change', () => {
     if (audio.playing) audio.start(audio.position());
@@ -83,10 +124,12 @@ async function main() {
   setupPresetTools();
   setupViews();
   setupAudition();
+  setupTabs();
   renderPrep();
   renderChain();
   renderExport();
   $('download').onclick = doExport;
+  $('open-file').onclick = () => $('file').click();
   $('file').onchange = (e) => { const f = e.target.files[0]; e.target.value = ''; if (f) openFile(f); };
   document.addEventListener('dragover', (e) => e.preventDefault());
   document.addEventListener('drop', (e) => { e.preventDefault(); const f = e.dataTransfer.files[0]; if (f) openFile(f); });

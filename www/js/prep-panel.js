@@ -7,7 +7,8 @@ import { requestRender } from './session.js';
 import { renderChain } from './chain-editor.js';
 
 function num(id, value, min, max, step, unit, onChange) {
-  const box = el('input', { id, type: 'number', min, max, step, value, 'aria-label': `${id} in ${unit}`,
+  const name = id.replace(/^prep-/, '').replace(/-/g, ' ');
+  const box = el('input', { id, type: 'number', min, max, step, value, 'aria-label': `${name} in ${unit}`,
     onchange: () => { const v = parseFloat(box.value); if (Number.isFinite(v)) onChange(v); } });
   return [box, el('span', { class: 'unit' }, unit)];
 }
@@ -52,14 +53,23 @@ export function renderPrep() {
       : norm?.kind === 'loudness'
         ? num('prep-lufs', norm.target_lufs, -70, 0, 0.5, 'LUFS', (v) => { norm.target_lufs = v; requestRender(); }) : [])),
     row('Loop', el('button', { type: 'button', id: 'prep-loop-set', title: 'Export the region selected on the waveform as the loop',
+      'aria-describedby': 'prep-loop-note',
       onclick: () => {
-        if (!state.loop) { setStatus('Drag on the waveform to select a region first.', 'error'); return; }
+        if (!state.loop) {
+          const text = 'No region selected yet: drag across the waveform, or type a loop start and end above it, then ' +
+            'press "Use selection" again.';
+          $('prep-loop-note').textContent = text;
+          setStatus(text, 'error');
+          return;
+        }
         const off = state.report?.prep?.trimmed_start_frames ?? 0;
         prep.loop_region = { start: state.loop.start + off, end: state.loop.end + off, crossfade_ms: loop?.crossfade_ms ?? 0 };
         changed();
+        $('prep-loop-set').focus();
       } }, 'Use selection'),
     ...(loop ? [...num('prep-loop-xfade', loop.crossfade_ms ?? 0, 0, 1000, 1, 'ms crossfade', (v) => { loop.crossfade_ms = v; requestRender(); }),
-      el('button', { type: 'button', 'aria-label': 'Remove the loop', onclick: () => { delete prep.loop_region; changed(); } }, '✕')] : [])),
+      el('button', { type: 'button', 'aria-label': 'Remove the loop', onclick: () => { delete prep.loop_region; changed(); $('prep-loop-set').focus(); } }, '✕')] : []),
+      el('span', { class: 'note', id: 'prep-loop-note', role: 'alert' })),
   );
 }
 

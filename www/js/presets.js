@@ -7,6 +7,7 @@ import { requestRender } from './session.js';
 import { renderChain } from './chain-editor.js';
 import { renderPrep } from './prep-panel.js';
 import { renderExport } from './export.js';
+import { plainError } from './messages.js';
 
 let BUILTIN_PRESETS = []; // from the core (Session.builtinPresets), shared with the CLI
 
@@ -23,10 +24,8 @@ export function setupPresetTools() {
     applyPreset(structuredClone(BUILTIN_PRESETS[+sel.value]));
     sel.value = '';
   };
-  $('preset-save').onclick = () => {
-    const text = JSON.stringify(state.preset, null, 2) + '\n';
-    download(new Blob([text], { type: 'application/json' }), `${slug(state.preset.name || 'preset')}.json`);
-  };
+  setupSaveDialog();
+  $('preset-load').onclick = () => $('preset-file').click();
   $('preset-file').onchange = async (e) => {
     const f = e.target.files[0];
     e.target.value = '';
@@ -48,7 +47,7 @@ export async function applyPreset(p) {
     state.preset = msg.preset;
     state.preset.prep ??= {};
   } catch (err) {
-    setStatus(`Preset not loaded: ${err.message}`, 'error');
+    setStatus(`Preset not loaded: ${plainError(err.message, p).text}`, 'error');
     return false;
   }
   renderPrep();
@@ -58,3 +57,34 @@ export async function applyPreset(p) {
   return true;
 }
 window.stairstepApplyPreset = applyPreset; // for tests and scripting
+
+// "Save preset…" asks for a name (in a modal dialog: Enter saves, Escape cancels), keeps it in the preset and names
+// the file after it.
+function setupSaveDialog() {
+  const dialog = $('save-dialog');
+  const name = $('save-name');
+  const fileName = () => `${slug(name.value.trim() || 'preset')}.json`;
+  const showFile = () => { $('save-file').textContent = fileName(); };
+  $('preset-save').onclick = () => {
+    name.value = state.preset.name && state.preset.name !== 'Untitled' ? state.preset.name : '';
+    showFile();
+    dialog.showModal();
+    name.focus();
+    name.select();
+  };
+  name.addEventListener('input', showFile);
+  const save = () => {
+    const given = name.value.trim();
+    if (!given) { name.setAttribute('aria-invalid', 'true'); name.focus(); $('save-file').textContent = 'give it a name first'; return; }
+    name.removeAttribute('aria-invalid');
+    state.preset.name = given;
+    const text = JSON.stringify(state.preset, null, 2) + '\n';
+    dialog.close();
+    download(new Blob([text], { type: 'application/json' }), fileName());
+    setStatus(`Saved preset "${given}" as ${fileName()}`);
+    $('preset-save').focus();
+  };
+  $('save-confirm').onclick = save;
+  $('save-cancel').onclick = () => { dialog.close(); $('preset-save').focus(); };
+  name.addEventListener('keydown', (e) => { if (e.key === 'Enter') { e.preventDefault(); save(); } });
+}

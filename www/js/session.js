@@ -7,7 +7,7 @@ import { call } from './worker-client.js';
 export const hooks = {
   presetChanged: () => {}, // before every render request (the live audition follows the preset)
   rendered: () => {}, // a render arrived and is in `state`: draw it
-  refused: (message) => {}, // the core refused the preset: say where
+  refused: (message) => message, // the core refused the preset: say where; returns the text for the status line
   sourceLoaded: () => {}, // a new sound is in `state`, before its first render
 };
 
@@ -34,7 +34,7 @@ export function requestRender() {
       setStatus(`Rendered in ${msg.ms.toFixed(0)} ms`);
       document.body.dataset.rendered = String((+document.body.dataset.rendered || 0) + 1);
     })
-    .catch((err) => { hooks.refused(err.message); setStatus(err.message, 'error'); })
+    .catch((err) => { setStatus(hooks.refused(err.message) ?? err.message, 'error'); })
     .finally(() => { rendering = false; if (pendingRender) requestRender(); });
 }
 

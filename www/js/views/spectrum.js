@@ -18,16 +18,27 @@ export function drawSpectrum() {
   g.font = `${11 * dpr}px system-ui, sans-serif`;
   g.fillStyle = css('--dim');
   g.strokeStyle = css('--grid');
+  const labelEvery = specY(-24, h) - specY(0, h) >= 15 * dpr ? 24 : 48; // as often as there is room
   for (let db = 0; db >= SPEC.bottom; db -= 24) {
     const y = specY(db, h);
     g.beginPath(); g.moveTo(0, y); g.lineTo(w, y); g.stroke();
-    g.fillText(`${db}`, 4, y - 2);
+    if (db % labelEvery) continue;
+    // Labels just below their line, inside the canvas; none on the bottom edge (the frequency labels are there).
+    if (y + 13 * dpr > h) continue;
+    g.fillText(db === 0 ? '0 dBFS' : `${db}`, 4 * dpr, y + 11 * dpr);
   }
+  let lastRight = 40 * dpr; // frequency labels start right of the level labels and never overlap
   for (const f of [50, 100, 200, 500, 1000, 2000, 5000, 10000, 20000]) {
     if (f >= nyq) continue;
     const x = specX(f, w, nyq);
     g.beginPath(); g.moveTo(x, 0); g.lineTo(x, h); g.stroke();
-    g.fillText(f >= 1000 ? `${f / 1000}k` : `${f}`, x + 2, h - 4);
+    const label = f >= 1000 ? `${f / 1000}k` : `${f}`;
+    const tw = g.measureText(label).width;
+    // Right of its line, or left of it where it would run past the edge ("20k" near a 22.05 kHz Nyquist).
+    const lx = x + 2 * dpr + tw <= w - dpr ? x + 2 * dpr : x - 2 * dpr - tw;
+    if (lx < lastRight + 4 * dpr) continue;
+    g.fillText(label, lx, h - 4 * dpr);
+    lastRight = lx + tw;
   }
   const curve = (s, color) => {
     const binHz = state.info.sampleRate / state.fftSize;

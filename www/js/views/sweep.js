@@ -19,8 +19,18 @@ export function drawSweep() {
   g.font = `${11 * dpr}px system-ui, sans-serif`;
   g.strokeStyle = css('--grid');
   g.fillStyle = css('--dim');
-  for (let db = 0; db <= top; db += 40) { g.beginPath(); g.moveTo(0, y(db)); g.lineTo(w, y(db)); g.stroke(); g.fillText(`${db} dB`, 4, y(db) - 2); }
-  for (const p of pts) if (p.bits % 4 === 0) g.fillText(`${p.bits}`, x(p.bits) - 4, h - 1);
+  // Grid every 40 dB; labels every 40 or 80 dB, whichever leaves room for them, inside the canvas.
+  const labelEvery = y(0) - y(40) >= 14 * dpr ? 40 : 80;
+  for (let db = 0; db <= top; db += 40) {
+    g.beginPath(); g.moveTo(0, y(db)); g.lineTo(w, y(db)); g.stroke();
+    // Above its line; the top line (the plot's ceiling) has no room for one.
+    if (db % labelEvery === 0 && y(db) - 2 * dpr >= 11 * dpr) g.fillText(`${db} dB`, 4 * dpr, y(db) - 2 * dpr);
+  }
+  for (const p of pts) {
+    if (p.bits % 4) continue;
+    const label = p.bits === 24 ? '24 bits' : `${p.bits}`;
+    g.fillText(label, Math.min(x(p.bits) - 4 * dpr, w - g.measureText(label).width - 2 * dpr), h - 2 * dpr);
+  }
   const line = (key, dash, color) => {
     g.setLineDash(dash); g.strokeStyle = color; g.lineWidth = dpr; g.beginPath();
     pts.forEach((p, i) => (i ? g.lineTo(x(p.bits), y(p[key])) : g.moveTo(x(p.bits), y(p[key]))));
