@@ -1,5 +1,5 @@
 // Stairstep crusher: an AudioWorklet module with the DSP core (WebAssembly) inside; needs no other file.
-// stairstep-source-hash: 2d57dbfde365621e625a2ab7006549d2889aab23b82f26a23d5c0437873b1ed0
+// stairstep-source-hash: d14a8fe2444150351a8f6d6a75e2fd7767bbbd947dcd447d7fb746a02d676d0f
 //   await ctx.audioWorklet.addModule('stairstep-worklet.js');
 //   const node = new AudioWorkletNode(ctx, 'stairstep-crusher', { outputChannelCount: [2],
 //     processorOptions: { preset: 'handheld' } });
