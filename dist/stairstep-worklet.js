@@ -1,5 +1,5 @@
 // Stairstep crusher: an AudioWorklet module with the DSP core (WebAssembly) inside; needs no other file.
-// stairstep-source-hash: d4d049acb3af23d1a9a255f5f350e5a35796f2b8fe3a1ee2a2977a85fbbd4d82
+// stairstep-source-hash: d14a8fe2444150351a8f6d6a75e2fd7767bbbd947dcd447d7fb746a02d676d0f
 //   await ctx.audioWorklet.addModule('stairstep-worklet.js');
 //   const node = new AudioWorkletNode(ctx, 'stairstep-crusher', { outputChannelCount: [2],
 //     processorOptions: { preset: 'handheld' } });

@@ -3,6 +3,9 @@
 // Content-Security-Policy (hashes for the inline style and script, no remote sources at all) and a hash of the sources
 // it was built from.
 //
+// The page's own code is ES modules under www/js/ (main.js at the top); esbuild (pinned in package-lock.json) joins
+// them into one IIFE, not minified, which goes into the page's single inline script (see `bundleApp`).
+//
 // It also writes the standalone live plug-in next to the page: dist/stairstep-worklet.js, an AudioWorklet module with
 // the wasm (base64) and the glue inside, for any Web Audio application (see examples/worklet/).
 //
@@ -21,6 +24,7 @@ import { createHash } from 'node:crypto';
 import { readFileSync, writeFileSync, readdirSync, statSync, mkdirSync, renameSync } from 'node:fs';
 import { dirname, join, relative, resolve } from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
+import { createRequire } from 'node:module';
 
 const root = join(dirname(fileURLToPath(import.meta.url)), '..');
 const args = process.argv.slice(2);
@@ -82,6 +86,26 @@ export function workletSource(wasmDir = join(root, 'build/wasm'), { embedWasm = 
   return worklet.replace(GLUE_SLOT, () => insert);
 }
 
+// The page's modules (www/js/main.js and what it imports) as one classic script: an IIFE with no imports left, no
+// minification (the offline page stays readable) and no syntax lowering. Paths in its comments are relative to the
+// repository, so the output (and the CSP hash over it) does not depend on where the build runs. esbuild is loaded
+// only here, so that --check and --hash work without node_modules.
+export function bundleApp() {
+  const esbuild = createRequire(import.meta.url)('esbuild');
+  const result = esbuild.buildSync({
+    entryPoints: ['www/js/main.js'],
+    absWorkingDir: root,
+    bundle: true,
+    format: 'iife',
+    platform: 'browser',
+    charset: 'utf8',
+    legalComments: 'none',
+    write: false,
+    logLevel: 'silent',
+  });
+  return result.outputFiles[0].text;
+}
+
 function writeAtomically(out, text) {
   mkdirSync(dirname(out), { recursive: true });
   writeFileSync(`${out}.tmp`, text);
@@ -94,7 +118,7 @@ function build(wasmDir, out) {
   const wasm = readFileSync(join(wasmDir, 'stairstep_opt.wasm'));
   const template = www('index.html');
   const style = www('style.css');
-  const app = scriptSafe(www('app.js'));
+  const app = scriptSafe(bundleApp());
   const worker = scriptSafe(`${glue}\n${www('worker.js')}`);
   const withWorklet = template.includes('%WORKLET%');
   const live = template.includes('%LIVE%') ? scriptSafe(www('live.js')) : undefined;

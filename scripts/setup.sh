@@ -158,12 +158,12 @@ if ! command -v chromium >/dev/null 2>&1 || ! command -v chromedriver >/dev/null
 fi
 
 # ---------------------------------------------------------------------------------------------------------------------
-# 4. Node tools pinned in package-lock.json: playwright-core and binaryen's wasm-opt (not Debian's binaryen 108,
-#    which breaks wasm-bindgen output).
+# 4. Node tools pinned in package-lock.json: playwright-core, esbuild (joins the page's modules) and binaryen's
+#    wasm-opt (not Debian's binaryen 108, which breaks wasm-bindgen output).
 # ---------------------------------------------------------------------------------------------------------------------
 lock_hash=$(sha256sum package-lock.json | cut -c1-16)
 if [ ! -x node_modules/.bin/wasm-opt ] || [ "$(cat node_modules/.stairstep-lock 2>/dev/null)" != "$lock_hash" ]; then
-  installing "node packages from package-lock.json (playwright-core, binaryen)"
+  installing "node packages from package-lock.json (playwright-core, esbuild, binaryen)"
   npm ci --no-audit --no-fund --silent >/dev/null
   echo "$lock_hash" > node_modules/.stairstep-lock
 fi

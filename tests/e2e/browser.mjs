@@ -18,10 +18,10 @@ export async function launch() {
   });
 }
 
-// Opens the page; returns { page, requests, errors }. `requests` lists every URL the page asked for, `offline` the
-// ones that were not file:, data: or blob: (must stay empty).
-export async function openPage(browser, { colorScheme = 'light' } = {}) {
-  const context = await browser.newContext({ viewport: { width: 1280, height: 800 }, colorScheme, acceptDownloads: true });
+// Opens the page (1280×800 unless `viewport` says otherwise); returns { page, requests, errors }. `requests` lists
+// every URL the page asked for, `offline` the ones that were not file:, data: or blob: (must stay empty).
+export async function openPage(browser, { colorScheme = 'light', viewport = { width: 1280, height: 800 } } = {}) {
+  const context = await browser.newContext({ viewport, colorScheme, acceptDownloads: true });
   const page = await context.newPage();
   const requests = [];
   const offline = [];

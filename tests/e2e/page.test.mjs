@@ -189,7 +189,10 @@ test('preset save then load restores the same chain', async () => {
     { kind: 'compand', law: 'alaw', a: 50, bits: 7 }, { kind: 'minifloat', exponent_bits: 3, mantissa_bits: 2, bypass: true }],
   export: { type: 'c-array', element: 'int16', name: 'blip' } });
   const saved = await page.evaluate(() => structuredClone(window.stairstep.preset));
-  const [download] = await Promise.all([page.waitForEvent('download'), page.click('#preset-save')]);
+  // "Save preset…" asks for the name in a dialog, filled in with the preset's own.
+  await page.click('#preset-save');
+  assert.equal(await page.inputValue('#save-name'), 'round trip');
+  const [download] = await Promise.all([page.waitForEvent('download'), page.click('#save-confirm')]);
   const path = join(tmp, 'saved.json');
   await download.saveAs(path);
   assert.equal(download.suggestedFilename(), 'round-trip.json');

@@ -1,0 +1,124 @@
+// Audition: source → monitor gain → safety limiter → destination. The limiter is on this path only: exports are never
+// limited. The monitor starts low (see the Monitor control in index.html).
+import { $, dbToGain } from './util.js';
+import { state } from './state.js';
+
+export const audio = {
+  ctx: null,
+  node: null,
+  playing: false,
+  startedAt: 0,
+  offset: 0,
+  buffers: {},
+  onstart: () => {}, // set by main.js: the waveform follows the playhead
+
+  ensure() {
+    if (this.ctx) return;
+    const ctx = new AudioContext();
+    this.ctx = ctx;
+    this.monitor = new GainNode(ctx, { gain: dbToGain(+$('monitor').value) });
+    // Safety limiter: a fast, hard-kneed compressor, then a static clipper at −3 dBFS for anything it lets through.
+    this.limiter = new DynamicsCompressorNode(ctx, { threshold: -12, knee: 0, ratio: 20, attack: 0.001, release: 0.1 });
+    const curve = new Float32Array(1025);
+    const ceiling = dbToGain(-3);
+    for (let i = 0; i < curve.length; i++) curve[i] = Math.max(-ceiling, Math.min(ceiling, (i / 512 - 1) * 1.0));
+    this.clipper = new WaveShaperNode(ctx, { curve });
+    this.monitor.connect(this.limiter).connect(this.clipper).connect(ctx.destination);
+    window.stairstepAudio = this;
+  },
+
+  newSource() { this.stop(); this.buffers = {}; },
+
+  buffer(which) {
+    if (this.buffers[which]) return this.buffers[which];
+    const data = which === 'input' ? state.input : which === 'output' ? state.output : errorSignal();
+    if (!data || !this.ctx) return null;
+    const b = new AudioBuffer({ numberOfChannels: data.length, length: Math.max(1, data[0].length),
+      sampleRate: state.info.sampleRate });
+    data.forEach((ch, i) => b.copyToChannel(ch, i));
+    this.buffers[which] = b;
+    return b;
+  },
+
+  listen() { return document.querySelector('input[name=listen]:checked').value; },
+
+  position() {
+    if (!this.playing) return this.offset;
+    const b = this.node.buffer;
+    let t = (this.ctx.currentTime - this.startedAt) * b.sampleRate + this.offset;
+    const ls = this.node.loop ? this.node.loopStart * b.sampleRate : 0;
+    const le = this.node.loop ? (this.node.loopEnd || b.duration) * b.sampleRate : b.length;
+    if (this.node.loop && t >= le) t = ls + ((t - ls) % (le - ls));
+    return Math.min(t, b.length);
+  },
+
+  start(atFrame) {
+    this.ensure();
+    const b = this.buffer(this.listen());
+    if (!b) return;
+    const node = new AudioBufferSourceNode(this.ctx, { buffer: b });
+    const sr = b.sampleRate;
+    node.loop = $('loop').checked;
+    if (state.loop) { node.loopStart = state.loop.start / sr; node.loopEnd = state.loop.end / sr; }
+    const fade = new GainNode(this.ctx, { gain: 0 });
+    node.connect(fade).connect(this.monitor);
+    const t = this.ctx.currentTime;
+    fade.gain.setTargetAtTime(1, t, 0.005);
+    let from = atFrame ?? (state.loop ? state.loop.start : 0);
+    if (state.loop && (from < state.loop.start || from >= state.loop.end)) from = state.loop.start;
+    node.start(t, from / sr);
+    node.onended = () => { if (this.node === node) { this.playing = false; updatePlayButton(); } };
+    this.retire();
+    this.node = node;
+    this.fade = fade;
+    this.startedAt = t;
+    this.offset = from;
+    this.playing = true;
+    updatePlayButton();
+    this.ctx.resume();
+    this.onstart();
+  },
+
+  retire() {
+    if (!this.node) return;
+    const { node, fade } = this;
+    fade.gain.setTargetAtTime(0, this.ctx.currentTime, 0.005);
+    node.onended = null;
+    node.stop(this.ctx.currentTime + 0.05);
+  },
+
+  stop() {
+    if (!this.playing) return;
+    this.offset = this.position();
+    this.retire();
+    this.node = null;
+    this.playing = false;
+    updatePlayButton();
+  },
+
+  toggle() { if (this.playing) { this.stop(); this.offset = 0; } else this.start(); },
+
+  // New render while playing: swap buffers in place, from the same position, with a short crossfade.
+  refresh() {
+    delete this.buffers.output;
+    delete this.buffers.error;
+    if (this.playing && this.listen() !== 'input') this.start(this.position());
+  },
+
+  loopChanged() { if (this.playing) this.start(this.position()); },
+};
+
+function errorSignal() {
+  if (state.errorSignal) return state.errorSignal;
+  if (!state.output) return null;
+  const input = state.reference ?? state.input;
+  state.errorSignal = state.output.map((o, c) => {
+    const x = input[Math.min(c, input.length - 1)];
+    const e = new Float32Array(o.length);
+    for (let i = 0; i < o.length; i++) e[i] = o[i] - (Number.isFinite(x[i]) ? x[i] : 0);
+    return e;
+  });
+  return state.errorSignal;
+}
+
+export function updatePlayButton() { $('play').textContent = audio.playing ? '■ Stop' : '▶ Play'; }

@@ -1,0 +1,146 @@
+// Stairstep page: start-up and wiring. All DSP runs in the worker (the Rust core compiled to wasm).
+// Imports go one way, from here down: main → presets → panels (chain editor, preparation, export; fields) → views,
+// live mode → audition → session (load, render) → worker client, state → schema, util. Lower modules reach higher
+// ones only through the hooks wired below (session.hooks, audio.onstart).
+import { $, el, setStatus, dbToGain } from './util.js';
+import { call, wasmBytes } from './worker-client.js';
+import { hooks, loadSource } from './session.js';
+import { renderChain, markStageErrors, setupStageTools } from './chain-editor.js';
+import { renderPrep, drawPrepReport } from './prep-panel.js';
+import { renderExport, drawBudget, doExport } from './export.js';
+import { setupPresetTools, setBuiltinPresets } from './presets.js';
+import { drawWave, setupWaveform, refreshEnvelope, tick, showLoopFields } from './views/waveform.js';
+import { drawSpectrum, spectrumReadout } from './views/spectrum.js';
+import { drawMeters } from './views/meters.js';
+import { drawSweep, requestSweep } from './views/sweep.js';
+import { audio } from './audition.js';
+import { live } from './live-mode.js';
+
+function drawAll() {
+  drawPrepReport();
+  drawSweep();
+  drawWave();
+  drawSpectrum();
+  drawMeters();
+  drawBudget();
+}
+
+hooks.presetChanged = () => live.presetChanged();
+hooks.rendered = () => { markStageErrors(null); showStale(null); drawAll(); audio.refresh(); };
+hooks.refused = (message) => { const text = markStageErrors(message); showStale(text); return text; };
+hooks.sourceLoaded = () => { audio.newSource(); requestSweep(); showLoopFields(); };
+
+// While the core refuses a value, the views keep the last accepted render: they say so and are greyed.
+function showStale(text) {
+  const note = $('stale-note');
+  $('views').classList.toggle('stale', !!text);
+  note.hidden = !text;
+  note.textContent = text ? `The views show the last accepted settings. ${text}` : '';
+}
+audio.onstart = tick;
+
+function setupViews() {
+  setupWaveform();
+  $('spectrum').addEventListener('pointermove', spectrumReadout);
+  // The views share the window's height, so they follow any change of their own size (window, meters wrapping).
+  const sized = new ResizeObserver((entries) => {
+    for (const e of entries) {
+      const id = e.target.firstElementChild.id;
+      if (id === 'wave') refreshEnvelope(); else if (id === 'spectrum') drawSpectrum(); else drawSweep();
+    }
+  });
+  document.querySelectorAll('.views .plot').forEach((p) => sized.observe(p));
+}
+
+// The Chain / Preparation tabs: arrow keys, Home and End move between them (one tab stop for the list).
+function setupTabs() {
+  const tabs = [...document.querySelectorAll('[role=tab]')];
+  const select = (tab) => {
+    for (const t of tabs) {
+      const on = t === tab;
+      t.setAttribute('aria-selected', String(on));
+      t.tabIndex = on ? 0 : -1;
+      $(t.getAttribute('aria-controls')).hidden = !on;
+    }
+  };
+  tabs.forEach((tab, i) => {
+    tab.addEventListener('click', () => select(tab));
+    tab.addEventListener('keydown', (ev) => {
+      const j = { ArrowRight: i + 1, ArrowLeft: i - 1, Home: 0, End: tabs.length - 1 }[ev.key];
+      if (j === undefined) return;
+      ev.preventDefault();
+      const next = tabs[(j + tabs.length) % tabs.length];
+      select(next);
+      next.focus();
+    });
+  });
+}
+
+function setupAudition() {
+  $('play').onclick = () => { if (live.mode !== 'off') { live.stop(); $('live').value = 'off'; } audio.toggle(); };
+  $('live').onchange = () => live.start($('live').value);
+  document.addEventListener('keydown', (ev) => {
+    // The space bar plays and stops, except where it already means something: typing, and every control that a
+    // space activates (buttons, check boxes, radio buttons, tabs) or moves (sliders).
+    const control = ev.target.closest('input, select, textarea, button, [role=tab], a[href], dialog');
+    if (ev.code === 'Space' && !control) { ev.preventDefault(); audio.toggle(); }
+  });
+  document.querySelectorAll('input[name=listen]').forEach((r) => r.addEventListener('change', () => {
+    if (audio.playing) audio.start(audio.position());
+  }));
+  $('loop').onchange = () => { if (audio.playing) audio.start(audio.position()); };
+  $('monitor').oninput = () => {
+    const db = +$('monitor').value;
+    $('monitor-out').textContent = `${db < 0 ? '−' : ''}${Math.abs(db)} dB`;
+    if (audio.monitor) audio.monitor.gain.setTargetAtTime(dbToGain(db), audio.ctx.currentTime, 0.02);
+  };
+}
+
+async function openFile(f) {
+  const bytes = await f.arrayBuffer();
+  const head = new Uint8Array(bytes, 0, Math.min(12, bytes.byteLength));
+  const isWav = String.fromCharCode(...head.slice(0, 4)) === 'RIFF' && String.fromCharCode(...head.slice(8, 12)) === 'WAVE';
+  if (isWav) return loadSource({ wav: bytes }, f.name, [bytes]);
+  // Anything else: let the browser decode it. decodeAudioData resamples to the context's rate, so ask for a context
+  // at a common rate and say so.
+  try {
+    const ctx = new OfflineAudioContext(1, 1, 48000);
+    const b = await ctx.decodeAudioData(bytes);
+    const inter = new Float32Array(b.length * b.numberOfChannels);
+    for (let c = 0; c < b.numberOfChannels; c++) {
+      const d = b.getChannelData(c);
+      for (let i = 0; i < b.length; i++) inter[i * b.numberOfChannels + c] = d[i];
+    }
+    await loadSource({ sampleRate: b.sampleRate, channels: b.numberOfChannels, interleaved: inter }, f.name,
+      [inter.buffer]);
+    setStatus(`${f.name} was decoded by the browser at ${b.sampleRate} Hz (its own rate may differ).`);
+  } catch (err) {
+    setStatus(`Could not read ${f.name}: not a WAV file and the browser cannot decode it. The current sound is unchanged.`, 'error');
+  }
+}
+
+async function main() {
+  setupStageTools();
+  setupPresetTools();
+  setupViews();
+  setupAudition();
+  setupTabs();
+  renderPrep();
+  renderChain();
+  renderExport();
+  $('download').onclick = doExport;
+  $('open-file').onclick = () => $('file').click();
+  $('file').onchange = (e) => { const f = e.target.files[0]; e.target.value = ''; if (f) openFile(f); };
+  document.addEventListener('dragover', (e) => e.preventDefault());
+  document.addEventListener('drop', (e) => { e.preventDefault(); const f = e.dataTransfer.files[0]; if (f) openFile(f); });
+  setStatus('Starting the engine…');
+  const ready = await call('init', { wasm: wasmBytes.buffer }, [wasmBytes.buffer]);
+  setBuiltinPresets(ready.presets);
+  const demo = $('demo');
+  for (const d of ready.demos) demo.append(el('option', { value: d }, d));
+  demo.onchange = () => { if (demo.value) loadSource({ demo: demo.value }, demo.value); };
+  await loadSource({ demo: ready.demos[0] }, ready.demos[0]);
+  document.body.dataset.ready = 'true';
+}
+
+main().catch((err) => setStatus(`Start-up failed: ${err.message}`, 'error'));

@@ -1,0 +1,23 @@
+// The page's state: the loaded sound, the latest render, the preset being edited, what the views show.
+import { $ } from './util.js';
+
+export const state = {
+  sourceName: 'chime-loop',
+  info: null, // { sampleRate, channels, frames }
+  input: null, // Float32Array per channel
+  output: null,
+  report: null,
+  spectra: null,
+  env: null,
+  preset: { format: 'stairstep-preset', version: 1, name: 'Untitled', seed: 1,
+            stages: [{ kind: 'quantize', bits: 8 }], export: { type: 'wav', encoding: 'pcm-s16' } },
+  view: { start: 0, end: 0 },
+  loop: null, // { start, end } in frames, or null for the whole sound
+  fftSize: 4096,
+  window: 'hann',
+};
+window.stairstep = state; // for tests and the curious
+
+// The frames the waveform shows, and how many pixel columns it has.
+export function viewRange() { return { start: state.view.start, end: state.view.end || (state.info ? state.info.frames : 0) }; }
+export function waveColumns() { return Math.max(100, Math.round($('wave').getBoundingClientRect().width)); }
