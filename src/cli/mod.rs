@@ -195,8 +195,12 @@ fn run(cli: Cli) -> Result<(), Failure> {
             Ok(())
         }
         Command::Presets { name: None } => {
+            // writeln!, not println!: a closed pipe (`stairstep presets | head -1`) ends the list instead of panicking.
+            let mut out = std::io::stdout().lock();
             for p in preset::builtin() {
-                println!("{:<16} {}", p.name, p.description);
+                if std::io::Write::write_fmt(&mut out, format_args!("{:<16} {}\n", p.name, p.description)).is_err() {
+                    break;
+                }
             }
             Ok(())
         }
