@@ -115,6 +115,10 @@ fn a_truncated_wav_warns_in_text_and_json_and_fails_under_strict_with_nothing_wr
         assert!(stderr(&strict).contains(&expected) && stderr(&strict).contains("--strict"), "{}", stderr(&strict));
         assert!(without_manifests(tree(&t.path().join("strict"))).is_empty(), "nothing written under --strict");
     }
+    // analyze reads the samples present and says the file is truncated.
+    let analyze = run(&["analyze", "cut.wav"], t.path());
+    ok(&analyze);
+    assert!(stderr(&analyze).contains(&expected), "{}", stderr(&analyze));
     // The whole file is fine under --strict.
     ok(&run(&["render", "--preset", "p.json", "full.wav", "-o", "full-out.wav", "--strict"], t.path()));
     // A re-run that skips the truncated file's output still repeats its warning, and --strict still fails it.

@@ -59,8 +59,14 @@ pub struct SweepArgs {
     json: bool,
 }
 
+/// Reads an input; what the reader noticed but read past (e.g. a truncated file) is printed on standard error.
 fn load(path: &Path) -> Result<Clip, Failure> {
-    io::wav::read(&read_file(path)?).map_err(|e| Failure::new(EXIT_INPUT, format!("{}: {e}", path.display())))
+    let (clip, meta) = io::wav::read_with_meta(&read_file(path)?)
+        .map_err(|e| Failure::new(EXIT_INPUT, format!("{}: {e}", path.display())))?;
+    for w in &meta.warnings {
+        eprintln!("warn {}: {w}", path.display());
+    }
+    Ok(clip)
 }
 
 #[derive(Serialize)]
