@@ -638,7 +638,7 @@ fn dry_line(o: &Outcome) -> String {
         ("replace", _) => "replace",
         _ => "render ",
     };
-    let why = o.reason.as_deref().or(o.error.as_deref()).map(|r| format!("  ({r})")).unwrap_or_default();
+    let why = o.reason.as_deref().or(o.error.as_deref()).map(|r| format!(": {r}")).unwrap_or_default();
     format!("{verb} {} -> {}{why}", o.input.display(), o.output.display())
 }
 
