@@ -119,6 +119,21 @@ fn a_truncated_wav_warns_in_text_and_json_and_fails_under_strict_with_nothing_wr
     let analyze = run(&["analyze", "cut.wav"], t.path());
     ok(&analyze);
     assert!(stderr(&analyze).contains(&expected), "{}", stderr(&analyze));
+    // A float WAV (written by libsndfile) with one NaN: the streaming render notices it only at the end of the
+    // samples, after most of the output is written; under --strict nothing may be left.
+    let nan = common::run_python(
+        "import sys, io, numpy as np, soundfile as sf\nx = np.full(48000, 0.25, dtype=np.float32); x[40000] = np.nan\n\
+         b = io.BytesIO(); sf.write(b, x, 48000, subtype='FLOAT', format='WAV'); sys.stdout.buffer.write(b.getvalue())",
+        b"",
+    );
+    std::fs::write(t.path().join("nan.wav"), nan).unwrap();
+    let warned = run(&["render", "--preset", "p.json", "nan.wav", "-o", "nan-out.wav"], t.path());
+    ok(&warned);
+    assert!(stderr(&warned).contains("1 input samples were NaN or infinite"), "{}", stderr(&warned));
+    std::fs::create_dir(t.path().join("nan-strict")).unwrap();
+    let strict = run(&["render", "--preset", "p.json", "nan.wav", "--out-dir", "nan-strict", "--strict"], t.path());
+    assert_eq!(strict.status.code(), Some(3), "{}", stderr(&strict));
+    assert!(tree(&t.path().join("nan-strict")).is_empty(), "nothing written, no temporary file left");
     // The whole file is fine under --strict.
     ok(&run(&["render", "--preset", "p.json", "full.wav", "-o", "full-out.wav", "--strict"], t.path()));
     // A re-run that skips the truncated file's output still repeats its warning, and --strict still fails it.
