@@ -378,34 +378,66 @@ fn render_streaming(
         let mut w =
             StreamWriter::new(sink, *encoding, chain.export_rate(), ch, chain.export_frames(), Default::default())
                 .map_err(io_err)?;
-        loop {
-            let block = match reader.read_block(BLOCK) {
-                Ok(b) => b,
-                Err(e) => {
-                    stage_error = Some(Failure::new(EXIT_INPUT, e.to_string()));
-                    return Err(std::io::Error::other("input failed"));
+        // Encoding and writing run on a second thread, overlapping the chain: export blocks go over a bounded
+        // channel (in order, so the bytes are those of one thread) and come back empty for reuse.
+        let sink = std::thread::scope(|s| -> std::io::Result<_> {
+            let (to_writer, blocks) = std::sync::mpsc::sync_channel::<Vec<Vec<f32>>>(4);
+            let (give_back, spare) = std::sync::mpsc::channel::<Vec<Vec<f32>>>();
+            let writer = s.spawn(move || -> std::io::Result<_> {
+                for mut block in blocks {
+                    w.write_block(&block).map_err(io_err)?;
+                    block.iter_mut().for_each(Vec::clear);
+                    let _ = give_back.send(block);
                 }
+                w.finish().map_err(io_err)
+            });
+            let send = |out: &mut ChainOutput| {
+                let empty = spare.try_recv().unwrap_or_else(|_| vec![Vec::with_capacity(BLOCK); ch]);
+                let full = std::mem::replace(&mut out.export, empty);
+                out.clear();
+                to_writer.send(full).is_ok()
             };
-            if block[0].is_empty() {
-                break;
+            let mut fed = true;
+            loop {
+                let block = match reader.read_block(BLOCK) {
+                    Ok(b) => b,
+                    Err(e) => {
+                        stage_error = Some(Failure::new(EXIT_INPUT, e.to_string()));
+                        fed = false;
+                        break;
+                    }
+                };
+                if block[0].is_empty() {
+                    break;
+                }
+                chain.process_block(&block, &mut out);
+                if !send(&mut out) {
+                    fed = false;
+                    break;
+                }
+                if let Some(p) = progress {
+                    p.inc(block[0].len() as u64);
+                }
             }
-            chain.process_block(&block, &mut out);
-            w.write_block(&out.export).map_err(io_err)?;
-            out.clear();
-            if let Some(p) = progress {
-                p.inc(block[0].len() as u64);
+            if fed {
+                let r = chain.finish(&mut out);
+                warnings.append(&mut reader.warnings);
+                render_warnings(r.non_finite_inputs, &[], warnings);
+                if let Err(f) = strict_check(rules, warnings) {
+                    stage_error = Some(f);
+                    fed = false;
+                }
+                report = Some(r);
+                fed = fed && send(&mut out);
             }
-        }
-        let r = chain.finish(&mut out);
-        warnings.append(&mut reader.warnings);
-        render_warnings(r.non_finite_inputs, &[], warnings);
-        if let Err(f) = strict_check(rules, warnings) {
-            stage_error = Some(f);
-            return Err(std::io::Error::other("strict"));
-        }
-        report = Some(r);
-        w.write_block(&out.export).map_err(io_err)?;
-        let sink = w.finish().map_err(io_err)?;
+            drop(to_writer);
+            let written = writer.join().unwrap_or_else(|_| Err(std::io::Error::other("writer thread stopped")));
+            match (fed, written) {
+                (true, w) => w,
+                (false, Err(e)) if stage_error.is_none() => Err(e),
+                (false, _) => Err(std::io::Error::other("render stopped")),
+            }
+        })?;
         output_sha256 = sink.into_inner().map_err(|e| e.into_error())?.hex();
         bytes = file.metadata()?.len();
         Ok(())
