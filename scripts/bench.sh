@@ -8,7 +8,8 @@
 # Steps: machine facts; builds (release CLI; the ratio example and the criterion benches in their own target dir,
 # target/bench, so that they never invalidate the release build; the wasm core for the page); the ratio table's rows
 # (examples/bench_ratios.rs: core chain vs numpy, quantize vs copy, wasm in node vs native, spectrum vs numpy);
-# the page in headless Chromium (scripts/bench/page.mjs); the wasm size; the CLI's peak memory on a long WAV; the
+# the page in headless Chromium (scripts/bench/page.mjs); the wasm size; the CLI's peak memory on a long WAV; the CLI
+# whole process against a numpy script and a no-stage render against cp + sync (scripts/bench/numpy_render.py); the
 # criterion micro-benchmarks (benches/core.rs, short times); then the table (scripts/bench/table.mjs).
 # Results go to build/bench/. Timings are never asserted: these machines are shared and noisy, so every ratio is a
 # median of rounds that alternate the two sides, with the spread printed beside it.
@@ -27,10 +28,10 @@ for arg in "$@"; do
   esac
 done
 if [ "$QUICK" = 1 ]; then
-  PAGE_SECONDS=5; PAGE_ROUNDS=3; WAV_SECONDS=10; QUICK_ARG=--quick
+  PAGE_SECONDS=5; PAGE_ROUNDS=3; WAV_SECONDS=10; QUICK_ARG=--quick; CLI_SECONDS=10; CLI_ROUNDS=3
   CRITERION_ARGS=(--warm-up-time 0.05 --measurement-time 0.1 --sample-size 10 --noplot)
 else
-  PAGE_SECONDS=60; PAGE_ROUNDS=7; WAV_SECONDS=600; QUICK_ARG=
+  PAGE_SECONDS=60; PAGE_ROUNDS=7; WAV_SECONDS=600; QUICK_ARG=; CLI_SECONDS=120; CLI_ROUNDS=7
   CRITERION_ARGS=(--warm-up-time 0.5 --measurement-time 1.5 --noplot)
 fi
 
@@ -138,6 +139,78 @@ node -e '
 echo "  max RSS $rss_kb KiB, wall $wall" >&2
 rm -f "$OUT/long-out.wav"
 [ "$QUICK" = 1 ] && rm -f "$LONG"
+
+# ---- CLI whole process: against a numpy script, and a no-stage render against cp + sync ---------------------------
+# Side by side, whole process to whole process (start-up, reading, writing and the final fsync included), alternating
+# which side goes first; the medians of per-round ratios. The same job for both sides of each row:
+#   1. gain -3 dB -> 12 kHz zero-order hold -> 8-bit TPDF -> unsigned 8-bit WAV, on a stereo 48 kHz float WAV:
+#      `stairstep render` against scripts/bench/numpy_render.py (soundfile + numpy);
+#   2. the same file through a preset with no stage, float32 WAV out: `stairstep render` against `cp` + `sync FILE`.
+step "CLI whole process: ${CLI_SECONDS} s stereo 48 kHz float WAV, ${CLI_ROUNDS} rounds"
+CLI_IN=$OUT/cli-in-${CLI_SECONDS}s.wav
+if [ ! -f "$CLI_IN" ]; then
+  env -u OPENBLAS_CORETYPE -u OPENBLAS_L2_SIZE "$PYTHON" -c '
+import sys, numpy as np, soundfile as sf
+r, n = 48000, 48000 * int(sys.argv[2])
+t = np.arange(n) / r
+noise = 0.05 * np.random.default_rng(1).standard_normal(n)
+x = np.stack([0.5 * np.sin(2 * np.pi * 440 * t) + noise, 0.4 * np.sin(2 * np.pi * 660 * t)], 1)
+sf.write(sys.argv[1], x.astype(np.float32), r, subtype="FLOAT")' "$CLI_IN.tmp" "$CLI_SECONDS"
+  mv "$CLI_IN.tmp" "$CLI_IN"
+fi
+cat > "$OUT/cli-chain.json" <<'JSON'
+{"format":"stairstep-preset","version":1,"name":"bench-cli","seed":1,"stages":[{"kind":"gain","gain_db":-3},
+ {"kind":"rate","rate_hz":12000,"mode":"hold"},{"kind":"quantize","bits":8,"dither":"tpdf"}],
+ "export":{"type":"wav","encoding":"pcm-u8"}}
+JSON
+cat > "$OUT/cli-copy.json" <<'JSON'
+{"format":"stairstep-preset","version":1,"name":"bench-copy","stages":[],"export":{"type":"wav","encoding":"float32"}}
+JSON
+now_ns() { date +%s%N; }
+# time_cmd VAR CMD...: runs CMD, stores its wall time in ns in VAR.
+time_cmd() { local var=$1; shift; local t0; t0=$(now_ns); "$@" > /dev/null 2>&1 || { echo "bench: failed: $*" >&2; exit 1; }; printf -v "$var" '%s' $(( $(now_ns) - t0 )); }
+cli_chain() { target/release/stairstep render --quiet --force --preset "$OUT/cli-chain.json" "$CLI_IN" -o "$OUT/cli-chain-out.wav"; }
+numpy_chain() { env -u OPENBLAS_CORETYPE -u OPENBLAS_L2_SIZE "$PYTHON" scripts/bench/numpy_render.py "$CLI_IN" "$OUT/numpy-chain-out.wav"; }
+cli_copy() { target/release/stairstep render --quiet --force --preset "$OUT/cli-copy.json" "$CLI_IN" -o "$OUT/cli-copy-out.wav"; }
+cp_sync() { rm -f "$OUT/cp-out.wav"; cp "$CLI_IN" "$OUT/cp-out.wav" && sync "$OUT/cp-out.wav"; }
+: > "$OUT/cli-rounds.txt"
+for r in $(seq 1 "$CLI_ROUNDS"); do
+  if [ $((r % 2)) = 1 ]; then
+    time_cmd a cli_chain; time_cmd b numpy_chain; time_cmd c cli_copy; time_cmd d cp_sync
+  else
+    time_cmd b numpy_chain; time_cmd a cli_chain; time_cmd d cp_sync; time_cmd c cli_copy
+  fi
+  echo "$a $b $c $d" >> "$OUT/cli-rounds.txt"
+done
+/usr/bin/time -f '%M' -o "$OUT/cli-rss.txt" bash -c "$(declare -f cli_chain); OUT='$OUT' CLI_IN='$CLI_IN'; cli_chain"
+/usr/bin/time -f '%M' -o "$OUT/numpy-rss.txt" bash -c "$(declare -f numpy_chain); OUT='$OUT' CLI_IN='$CLI_IN' PYTHON='$PYTHON'; numpy_chain"
+node -e '
+  const fs = require("fs");
+  const [dir, seconds] = process.argv.slice(1);
+  const rounds = fs.readFileSync(`${dir}/cli-rounds.txt`, "utf8").trim().split("\n").map((l) => l.split(" ").map(Number));
+  const med = (v) => { const s = [...v].sort((x, y) => x - y); return s[s.length >> 1]; };
+  const s = (ns) => `${(ns / 1e9).toFixed(3)} s`;
+  const rss = (f) => `${(Number(fs.readFileSync(`${dir}/${f}`, "utf8").trim().split("\n").pop()) / 1024).toFixed(0)} MB`;
+  const row = (what, ours, ref, invert, means, target, aim, note) => {
+    const ratios = rounds.map((r) => invert ? r[ref] / r[ours] : r[ours] / r[ref]);
+    const ratio = med(ratios);
+    console.log(JSON.stringify({
+      what, ours: `${s(med(rounds.map((r) => r[ours])))}`, reference: `${s(med(rounds.map((r) => r[ref])))}`,
+      ratio, lo: Math.min(...ratios), hi: Math.max(...ratios), rounds: rounds.length, means, target,
+      met: aim(ratio), note,
+    }));
+  };
+  const len = `${seconds} s stereo 48 kHz float WAV`;
+  row(`CLI render vs numpy script, whole process (${len})`, 0, 1, true,
+    "numpy script time / stairstep render time (gain, 12 kHz hold, 8-bit TPDF, u8 WAV)", "≥ 10×", (r) => r >= 10,
+    `peak memory: stairstep ${rss("cli-rss.txt")}, numpy ${rss("numpy-rss.txt")} (/usr/bin/time); both include start-up`);
+  row(`CLI no-stage float32 render vs cp + sync (${len})`, 2, 3, false,
+    "stairstep render time / (cp + sync FILE) time, same file", "≤ 2×", (r) => r <= 2,
+    "the render reads, measures (levels, SQNR), writes and fsyncs; cp copies in the kernel");
+' "$OUT" "$CLI_SECONDS" >> "$OUT/results.jsonl"
+tail -2 "$OUT/results.jsonl" >&2
+rm -f "$OUT"/cli-chain-out.wav "$OUT"/numpy-chain-out.wav "$OUT"/cli-copy-out.wav "$OUT"/cp-out.wav
+[ "$QUICK" = 1 ] && rm -f "$CLI_IN"
 
 # ---- criterion micro-benchmarks -------------------------------------------------------------------------------------
 if [ "$CRITERION" = 1 ]; then

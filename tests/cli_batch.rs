@@ -49,7 +49,7 @@ fn batch_continues_past_bad_files_reports_them_and_exits_non_zero() {
     assert!(t.path().join("out/a.wav").exists());
     assert!(t.path().join("out/sub/c.wav").exists(), "{{dir}} keeps the sub-folder");
     let stderr = String::from_utf8_lossy(&out.stderr);
-    assert!(stderr.contains("3 rendered, 1 failed") && stderr.contains("broken.wav"), "{stderr}");
+    assert!(stderr.contains("3 rendered, 0 up to date, 1 failed") && stderr.contains("broken.wav"), "{stderr}");
 }
 
 #[test]

@@ -17,9 +17,13 @@ Examples:
   stairstep analyze out.wav
   stairstep analyze out.wav --reference in.wav --json";
 
+/// `sqnr_db`'s reading for an error of exactly zero.
+const LOSSLESS_DB: f64 = 240.0;
+
 pub const SWEEP_HELP: &str = "\
 Quantizes the input at every word length from 1 to 24 bits (no dither) and prints the measured SQNR beside two theory
-lines: this signal's mean square over the step's Δ²/12, and 6.02·N + 1.76 dB (a full-scale sine).
+lines: this signal's mean square over the step's Δ²/12, and 6.02·N + 1.76 dB (a full-scale sine). \"lossless\": the
+input already sits on that grid (no error at all; --json gives 240 for it).
 
 Examples:
   stairstep sweep tone.wav
@@ -55,8 +59,14 @@ pub struct SweepArgs {
     json: bool,
 }
 
+/// Reads an input; what the reader noticed but read past (e.g. a truncated file) is printed on standard error.
 fn load(path: &Path) -> Result<Clip, Failure> {
-    io::wav::read(&read_file(path)?).map_err(|e| Failure::new(EXIT_INPUT, format!("{}: {e}", path.display())))
+    let (clip, meta) = io::wav::read_with_meta(&read_file(path)?)
+        .map_err(|e| Failure::new(EXIT_INPUT, format!("{}: {e}", path.display())))?;
+    for w in &meta.warnings {
+        eprintln!("warn {}: {w}", path.display());
+    }
+    Ok(clip)
 }
 
 #[derive(Serialize)]
@@ -191,13 +201,20 @@ pub fn sweep(args: SweepArgs) -> Result<(), Failure> {
         println!("{}", serde_json::to_string_pretty(&pts).unwrap_or_default());
         return Ok(());
     }
-    println!("{}: SQNR against word length ({:?}, {:?}, no dither)", args.input.display(), grid, rounding);
+    // The same spellings as the options (mid-tread, nearest), from the serde names.
+    let spell = |v: serde_json::Value| v.as_str().map(str::to_string).unwrap_or_default();
+    println!(
+        "{}: SQNR against word length ({}, {}, no dither)",
+        args.input.display(),
+        spell(serde_json::to_value(grid).unwrap_or_default()),
+        spell(serde_json::to_value(rounding).unwrap_or_default())
+    );
     println!("  bits  measured dB  this signal dB  full-scale sine dB   clipped");
     for p in &pts {
-        println!(
-            "  {:4}  {:11.2}  {:14.2}  {:18.2}  {:8}",
-            p.bits, p.measured_db, p.theory_db, p.sine_formula_db, p.clipped
-        );
+        // An error of exactly zero: the input already sits on this grid (sqnr_db reads it as +240 dB).
+        let measured =
+            if p.measured_db >= LOSSLESS_DB { "lossless".to_string() } else { format!("{:.2}", p.measured_db) };
+        println!("  {:4}  {:>11}  {:14.2}  {:18.2}  {:8}", p.bits, measured, p.theory_db, p.sine_formula_db, p.clipped);
     }
     Ok(())
 }

@@ -1,6 +1,7 @@
 //! Command-line interface (native only). One file per command; shared helpers here.
 
 mod analyze;
+mod manifest;
 mod render;
 mod serve;
 mod stages;
@@ -73,11 +74,11 @@ enum Command {
         #[arg(long)]
         json: bool,
     },
-    /// Serve the offline page on 127.0.0.1 and print its URL.
+    /// Serve the offline page on 127.0.0.1 and print its URL (the page is built into the binary).
     Serve {
-        /// The page to serve.
-        #[arg(long, default_value = "dist/stairstep.html")]
-        page: PathBuf,
+        /// Serve this page file instead of the built-in one (e.g. a fresh `make page` build).
+        #[arg(long)]
+        page: Option<PathBuf>,
         /// Port (falls back to any free port when taken).
         #[arg(long, default_value_t = 8737)]
         port: u16,
@@ -95,6 +96,11 @@ impl Failure {
     fn new(code: u8, message: impl Into<String>) -> Self {
         Failure { code, message: message.into() }
     }
+
+    /// A failure already reported to the user (each failed file on its own line): only the exit code is left.
+    fn reported(code: u8) -> Self {
+        Failure { code, message: String::new() }
+    }
 }
 
 fn read_file(path: &Path) -> Result<Vec<u8>, Failure> {
@@ -105,48 +111,84 @@ fn read_file(path: &Path) -> Result<Vec<u8>, Failure> {
 fn load_preset(arg: &str) -> Result<Preset, Failure> {
     let path = Path::new(arg);
     if !path.exists() {
-        if let Some(p) = preset::builtin().into_iter().find(|p| p.name == arg) {
-            return Ok(p);
+        let builtin = preset::builtin();
+        if let Some(p) = builtin.iter().find(|p| p.name == arg) {
+            return Ok(p.clone());
         }
+        let names: Vec<&str> = builtin.iter().map(|p| p.name.as_str()).collect();
+        return Err(Failure::new(
+            EXIT_USAGE,
+            format!("{arg}: not a built-in preset or a file; built-ins: {}", names.join(", ")),
+        ));
     }
     let text = String::from_utf8(read_file(path)?)
         .map_err(|_| Failure::new(EXIT_USAGE, format!("{}: not UTF-8 text", path.display())))?;
     Preset::from_json(&text).map_err(|e| Failure::new(EXIT_USAGE, format!("{}: {e}", path.display())))
 }
 
-/// Writes `bytes` to `path` atomically (see [`write_atomic_with`]).
-pub fn write_atomic(path: &Path, bytes: &[u8], force: bool) -> Result<(), Failure> {
-    write_atomic_with(path, force, |f| std::io::Write::write_all(f, bytes))
+/// Writes `bytes` to `path` atomically (see [`write_atomic_with`]); `replace`: may replace an existing file.
+pub fn write_atomic(path: &Path, bytes: &[u8], replace: bool) -> Result<(), Failure> {
+    write_atomic_with(path, replace, |f| std::io::Write::write_all(f, bytes))
 }
 
-/// Writes `path` atomically: `fill` writes a temporary file in the same folder, which is synced and then renamed
-/// over `path`, so an interrupted run leaves no half-written file under the real name (at worst a hidden
-/// `.NAME.PID.stairstep-tmp`). Refuses to replace an existing file unless `force`.
+/// The message for an output that exists and may not be replaced.
+pub const EXISTS: &str = "exists (use --force to replace it)";
+
+/// Writes `path` atomically: `fill` writes a temporary file in the same folder, which is synced and then put in
+/// place, so an interrupted run leaves no half-written file under the real name (at worst a hidden
+/// `.NAME.PID.N.stairstep-tmp`).
+///
+/// - `replace == false` (a new file): the temporary file is hard-linked to `path`, which fails if `path` exists —
+///   also when it appeared after any earlier check (no check-then-rename race) — and the temporary name is removed.
+///   On a file system without hard links (e.g. FAT) the name is claimed with an exclusive create instead and the
+///   temporary file renamed over that empty claim.
+/// - `replace == true`: the temporary file is renamed over `path` (atomic on POSIX file systems).
 pub fn write_atomic_with(
     path: &Path,
-    force: bool,
+    replace: bool,
     fill: impl FnOnce(&mut std::fs::File) -> std::io::Result<()>,
 ) -> Result<(), Failure> {
-    let fail = |e: std::io::Error| Failure::new(EXIT_OUTPUT, format!("{}: {e}", path.display()));
-    if !force && path.exists() {
-        return Err(Failure::new(EXIT_OUTPUT, format!("{}: exists (use --force to replace it)", path.display())));
+    use std::sync::atomic::{AtomicU64, Ordering};
+    static COUNTER: AtomicU64 = AtomicU64::new(0);
+    let exists = || Failure::new(EXIT_OUTPUT, format!("{}: {EXISTS}", path.display()));
+    if !replace && path.symlink_metadata().is_ok() {
+        return Err(exists());
     }
     let dir = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
     let name = path.file_name().ok_or_else(|| Failure::new(EXIT_OUTPUT, "output path has no file name"))?;
-    let tmp = dir.join(format!(".{}.{}.stairstep-tmp", name.to_string_lossy(), std::process::id()));
+    let n = COUNTER.fetch_add(1, Ordering::Relaxed);
+    let tmp = dir.join(format!(".{}.{}.{n}.stairstep-tmp", name.to_string_lossy(), std::process::id()));
     let result = (|| {
-        let mut f = std::fs::File::create(&tmp)?;
+        let mut f = std::fs::OpenOptions::new().write(true).create_new(true).open(&tmp)?;
         fill(&mut f)?;
         f.sync_all()?;
-        if !force && path.exists() {
-            return Err(std::io::Error::new(std::io::ErrorKind::AlreadyExists, "exists (use --force to replace it)"));
+        drop(f);
+        if replace {
+            return std::fs::rename(&tmp, path);
         }
-        std::fs::rename(&tmp, path)
+        match std::fs::hard_link(&tmp, path) {
+            Ok(()) => std::fs::remove_file(&tmp),
+            Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => Err(e),
+            Err(_) => {
+                // No hard links here: claim the name exclusively, then rename over the claim.
+                std::fs::OpenOptions::new().write(true).create_new(true).open(path)?;
+                std::fs::rename(&tmp, path)
+            }
+        }
     })();
     if result.is_err() {
         let _ = std::fs::remove_file(&tmp);
     }
-    result.map_err(fail)
+    result.map_err(|e| {
+        if e.kind() == std::io::ErrorKind::AlreadyExists {
+            Failure::new(
+                EXIT_OUTPUT,
+                format!("{}: {EXISTS}; it appeared while this output was written", path.display()),
+            )
+        } else {
+            Failure::new(EXIT_OUTPUT, format!("{}: {e}", path.display()))
+        }
+    })
 }
 
 fn run(cli: Cli) -> Result<(), Failure> {
@@ -163,8 +205,12 @@ fn run(cli: Cli) -> Result<(), Failure> {
             Ok(())
         }
         Command::Presets { name: None } => {
+            // writeln!, not println!: a closed pipe (`stairstep presets | head -1`) ends the list instead of panicking.
+            let mut out = std::io::stdout().lock();
             for p in preset::builtin() {
-                println!("{:<16} {}", p.name, p.description);
+                if std::io::Write::write_fmt(&mut out, format_args!("{:<16} {}\n", p.name, p.description)).is_err() {
+                    break;
+                }
             }
             Ok(())
         }
@@ -177,7 +223,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
             Ok(())
         }
         Command::Stages { kind, json } => stages::run(kind.as_deref(), json),
-        Command::Serve { page, port } => serve::serve(&page, port),
+        Command::Serve { page, port } => serve::serve(page.as_deref(), port),
     }
 }
 
@@ -194,7 +240,9 @@ pub fn main() -> ExitCode {
     match run(cli) {
         Ok(()) => ExitCode::SUCCESS,
         Err(f) => {
-            eprintln!("stairstep: {}", f.message);
+            if !f.message.is_empty() {
+                eprintln!("stairstep: {}", f.message);
+            }
             ExitCode::from(f.code)
         }
     }

@@ -1,32 +1,52 @@
 //! `stairstep render`: one file, many files or whole folders through one preset.
 //!
 //! Each file is independent, so a batch runs on all cores (rayon) and gives byte-identical outputs to a
-//! single-threaded run (`--jobs 1`). Failures do not stop the batch; they are listed at the end and make the exit
-//! code non-zero.
+//! single-threaded run (`--jobs 1`). Failures do not stop the batch; each is named with its reason as it happens and
+//! makes the exit code non-zero. With `--out-dir`, a manifest in that folder (see [`super::manifest`]) lets a re-run
+//! skip what is up to date and re-render what is stale; `--shard K/N` takes a fixed 1/N of the batch.
 
-use super::{load_preset, read_file, write_atomic, write_atomic_with, Failure, EXIT_INPUT, EXIT_OUTPUT, EXIT_USAGE};
+use super::manifest::{self, Entry, Known};
+use super::EXIT_USAGE;
+use super::{load_preset, write_atomic, write_atomic_with, Failure, EXISTS, EXIT_INPUT, EXIT_OUTPUT};
 use indicatif::{ProgressBar, ProgressStyle};
 use rayon::prelude::*;
 use serde::Serialize;
 use stairstep::io::ExportFormat;
-use stairstep::{io, render, Preset};
+use stairstep::{io, render, Clip, Preset};
 use std::collections::HashMap;
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
-use std::sync::Mutex;
+use std::sync::mpsc::Sender;
 
 pub const HELP: &str = "\
 Output names: with --out-dir, each output is named by --name, a template with the placeholders {stem} (input file
 name without extension), {preset} (preset name), {ext} (the export format's extension) and {dir} (the input's folder
-relative to the folder given on the command line, for --recursive). Default: {dir}/{stem}.{ext}.
+relative to the folder given on the command line, for --recursive). Default: {dir}/{stem}.{ext}. A C-array export's
+array name may hold {stem} too (e.g. \"name\":\"sfx_{stem}\"), made a valid C identifier, so that one build can
+include every header.
 
-Nothing is overwritten without --force, an input is never overwritten, and every output is written to a temporary
-file first and renamed when complete.
+Re-runs (with --out-dir): the folder keeps a manifest, .stairstep-manifest.json, of what stairstep wrote there and
+from what (SHA-256 of the input, of the preset's normalised JSON, the export and the tool version, and of the output).
+An output that is up to date is skipped (\"up to date\", the file untouched); one that stairstep wrote from another
+input, preset, export or version is stale and rendered again; a file the manifest does not know (or that changed
+since) is never replaced without --force. --dry-run lists what a run would do and writes nothing.
+
+Sharding: --shard K/N renders the inputs whose output path (relative to --out-dir) hashes to K of N (SHA-256, first
+8 bytes, mod N): N jobs with the same command line and K = 1..N split a batch with no coordinator, whatever order the
+file system lists the files in; together they write exactly the files (and bytes) of one run.
+
+Warnings (a truncated file, damaged metadata, preparation notes, non-finite samples) are printed as \"warn\" lines and
+listed under \"warnings\" in --json; --strict makes any warning a failure of that file (nothing written).
+
+Nothing is overwritten without --force (or a stale manifest entry), an input is never overwritten, and every output is
+written to a temporary file first and put in place only when complete; a new output is hard-linked into place, so a
+file that appears meanwhile under the same name is never replaced.
 
 Examples:
   stairstep render --preset crush.json in.wav -o out.wav
   stairstep render --preset handheld sfx/*.wav --out-dir build/sfx
-  stairstep render --preset crush.json --recursive assets/ --out-dir out/ --name '{dir}/{stem}-{preset}.{ext}' --json";
+  stairstep render --preset crush.json --recursive assets/ --out-dir out/ --name '{dir}/{stem}-{preset}.{ext}' --json
+  stairstep render --preset crush.json --recursive assets/ --out-dir out/ --shard 2/4 --strict";
 
 #[derive(clap::Args)]
 pub struct Args {
@@ -54,15 +74,34 @@ pub struct Args {
     /// Replace existing outputs.
     #[arg(long)]
     force: bool,
-    /// Print nothing but errors.
+    /// Print nothing but failures and warnings.
     #[arg(short, long)]
     quiet: bool,
-    /// Print a JSON summary (one object per file) on standard output.
+    /// Print a JSON array (one object per file) on standard output.
     #[arg(long)]
     json: bool,
+    /// Make any warning about a file (e.g. truncated) a failure of that file: nothing is written for it.
+    #[arg(long)]
+    strict: bool,
+    /// List what would be rendered, replaced, skipped (up to date) or refused, and write nothing.
+    #[arg(long)]
+    dry_run: bool,
+    /// Render only shard K of N (1 <= K <= N): a fixed share of the inputs, for N jobs that split a batch.
+    #[arg(long, value_name = "K/N", value_parser = parse_shard)]
+    shard: Option<(u64, u64)>,
     /// Worker threads (default: all cores).
     #[arg(short, long)]
     jobs: Option<usize>,
+}
+
+fn parse_shard(s: &str) -> Result<(u64, u64), String> {
+    let bad = || format!("{s:?}: K/N with 1 <= K <= N, e.g. 2/4");
+    let (k, n) = s.split_once('/').ok_or_else(bad)?;
+    let (k, n): (u64, u64) = (k.trim().parse().map_err(|_| bad())?, n.trim().parse().map_err(|_| bad())?);
+    if k == 0 || n == 0 || k > n {
+        return Err(bad());
+    }
+    Ok((k, n))
 }
 
 /// One file's outcome, as printed by `--json`.
@@ -71,6 +110,11 @@ struct Outcome {
     input: PathBuf,
     output: PathBuf,
     ok: bool,
+    /// What was done (or, with --dry-run, would be): `create`, `replace`, `skip` (up to date) or `refuse`.
+    action: &'static str,
+    /// Why an output is replaced, skipped or refused.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    reason: Option<String>,
     #[serde(skip_serializing_if = "Option::is_none")]
     error: Option<String>,
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -83,7 +127,8 @@ struct Outcome {
     sqnr_db: Option<f64>,
     #[serde(skip_serializing_if = "Option::is_none")]
     bytes: Option<u64>,
-    /// What the reader noticed but could read past (e.g. a malformed `smpl` chunk, ignored).
+    /// What the reader or the preparation noticed but could go past (e.g. a truncated file, a malformed `smpl`
+    /// chunk); with --strict, any warning fails the file.
     #[serde(skip_serializing_if = "Vec::is_empty")]
     warnings: Vec<String>,
     /// Loop points written, at the export rate (inclusive end, as in `smpl`).
@@ -98,6 +143,11 @@ struct Outcome {
 struct Job {
     input: PathBuf,
     output: PathBuf,
+    /// The output's path relative to --out-dir (`/`-separated; the manifest's key and the shard hash's input), or the
+    /// output as given to -o.
+    key: String,
+    /// The input's file name without extension.
+    stem: String,
 }
 
 fn is_wav(p: &Path) -> bool {
@@ -123,6 +173,28 @@ fn collect(dir: &Path, base: &Path, recursive: bool, out: &mut Vec<(PathBuf, Pat
     Ok(())
 }
 
+const PLACEHOLDERS: [&str; 4] = ["{stem}", "{preset}", "{ext}", "{dir}"];
+
+/// Refuses a --name template with a placeholder other than [`PLACEHOLDERS`] (or an unclosed brace).
+fn check_template(template: &str) -> Result<(), Failure> {
+    let mut rest = template;
+    while let Some(i) = rest.find('{') {
+        let after = &rest[i..];
+        let Some(j) = after.find('}') else {
+            return Err(Failure::new(EXIT_USAGE, format!("--name {template:?}: a {{ without its }}")));
+        };
+        let ph = &after[..=j];
+        if !PLACEHOLDERS.contains(&ph) {
+            return Err(Failure::new(
+                EXIT_USAGE,
+                format!("--name {template:?}: unknown placeholder {ph}; there are {}", PLACEHOLDERS.join(", ")),
+            ));
+        }
+        rest = &after[j + 1..];
+    }
+    Ok(())
+}
+
 fn expand(template: &str, stem: &str, preset: &str, ext: &str, dir: &Path) -> PathBuf {
     let dir = dir.to_string_lossy();
     let s = template.replace("{stem}", stem).replace("{preset}", preset).replace("{ext}", ext).replace("{dir}", &dir);
@@ -130,7 +202,17 @@ fn expand(template: &str, stem: &str, preset: &str, ext: &str, dir: &Path) -> Pa
     PathBuf::from(s.trim_start_matches('/'))
 }
 
+fn stem_of(p: &Path) -> String {
+    p.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_default()
+}
+
+/// A relative path as a `/`-separated key.
+fn key_of(rel: &Path) -> String {
+    rel.components().map(|c| c.as_os_str().to_string_lossy()).collect::<Vec<_>>().join("/")
+}
+
 fn plan(args: &Args, preset: &Preset, export: &ExportFormat) -> Result<Vec<Job>, Failure> {
+    check_template(&args.name)?;
     let mut found = Vec::new();
     for input in &args.inputs {
         if input.is_dir() {
@@ -151,14 +233,14 @@ fn plan(args: &Args, preset: &Preset, export: &ExportFormat) -> Result<Vec<Job>,
                 ));
             }
             let (input, _) = found.pop().expect("one input");
-            vec![Job { input, output: out.clone() }]
+            vec![Job { stem: stem_of(&input), input, output: out.clone(), key: key_of(out) }]
         }
         (None, Some(dir)) => found
             .into_iter()
             .map(|(input, rel_dir)| {
-                let stem = input.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_default();
+                let stem = stem_of(&input);
                 let name = expand(&args.name, &stem, &slug(&preset.name), export.extension(), &rel_dir);
-                Job { output: dir.join(name), input }
+                Job { output: dir.join(&name), key: key_of(&name), stem, input }
             })
             .collect(),
         _ => return Err(Failure::new(EXIT_USAGE, "give either -o FILE (one input) or --out-dir DIR")),
@@ -203,6 +285,55 @@ struct Measured {
     sqnr_db: f64,
     bytes: u64,
     loop_frames: Option<(u32, u32)>,
+    /// SHA-256 of the bytes written (when a manifest is kept).
+    output_sha256: Option<String>,
+}
+
+/// How one render may write its output and what it must check.
+struct WriteRules {
+    /// Replace an existing output (--force or a stale manifest entry); otherwise the output must be new.
+    replace: bool,
+    /// Fail on any warning, before the output is put in place.
+    strict: bool,
+    /// Hash the bytes written (for the manifest).
+    hash: bool,
+}
+
+/// Under --strict, any warning fails the file; the warnings stay in the outcome.
+fn strict_check(rules: &WriteRules, warnings: &[String]) -> Result<(), Failure> {
+    if rules.strict && !warnings.is_empty() {
+        let n = warnings.len();
+        return Err(Failure::new(
+            EXIT_INPUT,
+            format!("--strict: {n} warning{} (nothing written)", if n == 1 { "" } else { "s" }),
+        ));
+    }
+    Ok(())
+}
+
+/// The warnings a render adds to the reader's: non-finite samples and the preparation's notes.
+fn render_warnings(non_finite: u64, prep_notes: &[String], warnings: &mut Vec<String>) {
+    if non_finite > 0 {
+        warnings.push(format!("{non_finite} input samples were NaN or infinite (rendered as 0 and ±1.0)"));
+    }
+    warnings.extend(prep_notes.iter().map(|n| format!("preparation: {n}")));
+}
+
+/// The sound of an input file, as the in-memory render needs it. This is the one place that reads a whole input.
+struct Input {
+    clip: Clip,
+    /// A loop from the file's own metadata (a WAV `smpl` chunk), in source frames, end exclusive.
+    file_loop: Option<(u64, u64)>,
+    /// What the reader noticed but could read past.
+    warnings: Vec<String>,
+}
+
+/// Reads a whole input file. Errors do not repeat the file's name: the line that reports them names it.
+fn read_input(path: &Path) -> Result<Input, Failure> {
+    let bytes = std::fs::read(path).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
+    let (clip, meta) = io::wav::read_with_meta(&bytes).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
+    let file_loop = meta.loops.first().map(|l| (l.start as u64, l.end as u64 + 1));
+    Ok(Input { clip, file_loop, warnings: meta.warnings })
 }
 
 /// Renders in blocks, from file to file, when nothing needs the whole sound at once: a byte-aligned WAV input
@@ -212,9 +343,11 @@ fn render_streaming(
     job: &Job,
     preset: &Preset,
     export: &ExportFormat,
-    force: bool,
+    rules: &WriteRules,
+    warnings: &mut Vec<String>,
     progress: Option<&ProgressBar>,
 ) -> Result<Option<Measured>, Failure> {
+    use manifest::HashingWriter;
     use stairstep::chain::{Chain, ChainOutput};
     use stairstep::io::wav::stream::{StreamReader, StreamWriter};
     use stairstep::stages::BLOCK;
@@ -222,11 +355,13 @@ fn render_streaming(
     if !preset.prep.is_noop() || !StreamWriter::<std::fs::File>::supports(*encoding) {
         return Ok(None);
     }
-    let input_err = |e: std::io::Error| Failure::new(EXIT_INPUT, format!("{}: {e}", job.input.display()));
+    let input_err = |e: std::io::Error| Failure::new(EXIT_INPUT, e.to_string());
     let file = std::fs::File::open(&job.input).map_err(input_err)?;
     let reader = StreamReader::open(std::io::BufReader::with_capacity(1 << 20, file))
         .map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
     let Some(mut reader) = reader else { return Ok(None) };
+    warnings.append(&mut reader.warnings);
+    strict_check(rules, warnings)?;
     let f = reader.format().clone();
     let (ch, rate, frames) = (f.channels as usize, f.sample_rate, reader.frames());
     let mut chain = Chain::new(preset, ch, rate, frames).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
@@ -236,34 +371,75 @@ fn render_streaming(
     let mut out = ChainOutput::new(ch);
     let mut report = None;
     let mut bytes = 0u64;
+    let mut output_sha256 = None;
     let mut stage_error = None;
-    write_atomic_with(&job.output, force, |file| {
+    write_atomic_with(&job.output, rules.replace, |file| {
         let io_err = |e: stairstep::Error| std::io::Error::other(e.to_string());
-        let sink = std::io::BufWriter::with_capacity(1 << 20, &mut *file);
+        let sink = std::io::BufWriter::with_capacity(1 << 20, HashingWriter::new(&mut *file, rules.hash));
         let mut w =
             StreamWriter::new(sink, *encoding, chain.export_rate(), ch, chain.export_frames(), Default::default())
                 .map_err(io_err)?;
-        loop {
-            let block = match reader.read_block(BLOCK) {
-                Ok(b) => b,
-                Err(e) => {
-                    stage_error = Some(Failure::new(EXIT_INPUT, format!("{}: {e}", job.input.display())));
-                    return Err(std::io::Error::other("input failed"));
+        // Encoding and writing run on a second thread, overlapping the chain: export blocks go over a bounded
+        // channel (in order, so the bytes are those of one thread) and come back empty for reuse.
+        let sink = std::thread::scope(|s| -> std::io::Result<_> {
+            let (to_writer, blocks) = std::sync::mpsc::sync_channel::<Vec<Vec<f32>>>(4);
+            let (give_back, spare) = std::sync::mpsc::channel::<Vec<Vec<f32>>>();
+            let writer = s.spawn(move || -> std::io::Result<_> {
+                for mut block in blocks {
+                    w.write_block(&block).map_err(io_err)?;
+                    block.iter_mut().for_each(Vec::clear);
+                    let _ = give_back.send(block);
                 }
+                w.finish().map_err(io_err)
+            });
+            let send = |out: &mut ChainOutput| {
+                let empty = spare.try_recv().unwrap_or_else(|_| vec![Vec::with_capacity(BLOCK); ch]);
+                let full = std::mem::replace(&mut out.export, empty);
+                out.clear();
+                to_writer.send(full).is_ok()
             };
-            if block[0].is_empty() {
-                break;
+            let mut fed = true;
+            loop {
+                let block = match reader.read_block(BLOCK) {
+                    Ok(b) => b,
+                    Err(e) => {
+                        stage_error = Some(Failure::new(EXIT_INPUT, e.to_string()));
+                        fed = false;
+                        break;
+                    }
+                };
+                if block[0].is_empty() {
+                    break;
+                }
+                chain.process_block(&block, &mut out);
+                if !send(&mut out) {
+                    fed = false;
+                    break;
+                }
+                if let Some(p) = progress {
+                    p.inc(block[0].len() as u64);
+                }
             }
-            chain.process_block(&block, &mut out);
-            w.write_block(&out.export).map_err(io_err)?;
-            out.clear();
-            if let Some(p) = progress {
-                p.inc(block[0].len() as u64);
+            if fed {
+                let r = chain.finish(&mut out);
+                warnings.append(&mut reader.warnings);
+                render_warnings(r.non_finite_inputs, &[], warnings);
+                if let Err(f) = strict_check(rules, warnings) {
+                    stage_error = Some(f);
+                    fed = false;
+                }
+                report = Some(r);
+                fed = fed && send(&mut out);
             }
-        }
-        report = Some(chain.finish(&mut out));
-        w.write_block(&out.export).map_err(io_err)?;
-        w.finish().map_err(io_err)?;
+            drop(to_writer);
+            let written = writer.join().unwrap_or_else(|_| Err(std::io::Error::other("writer thread stopped")));
+            match (fed, written) {
+                (true, w) => w,
+                (false, Err(e)) if stage_error.is_none() => Err(e),
+                (false, _) => Err(std::io::Error::other("render stopped")),
+            }
+        })?;
+        output_sha256 = sink.into_inner().map_err(|e| e.into_error())?.hex();
         bytes = file.metadata()?.len();
         Ok(())
     })
@@ -276,6 +452,7 @@ fn render_streaming(
         sqnr_db: r.sqnr_db,
         bytes,
         loop_frames: None,
+        output_sha256,
     }))
 }
 
@@ -284,37 +461,92 @@ fn render_in_memory(
     job: &Job,
     preset: &Preset,
     export: &ExportFormat,
-    force: bool,
-) -> Result<(Measured, Vec<String>), Failure> {
-    let (clip, meta) =
-        io::wav::read_with_meta(&read_file(&job.input)?).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
-    // A loop in the file's own `smpl` chunk is kept when the preset sets none; damaged metadata is a warning.
-    let file_loop = meta.loops.first().map(|l| (l.start as u64, l.end as u64 + 1));
-    let r = render::render_with_loop(preset, &clip, file_loop).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
+    rules: &WriteRules,
+    warnings: &mut Vec<String>,
+) -> Result<Measured, Failure> {
+    let mut input = read_input(&job.input)?;
+    warnings.append(&mut input.warnings);
+    strict_check(rules, warnings)?;
+    // A loop in the file's own metadata is kept when the preset sets none.
+    let r = render::render_with_loop(preset, &input.clip, input.file_loop)
+        .map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
+    render_warnings(r.report.non_finite_inputs, r.prep.as_ref().map_or(&[], |p| &p.notes), warnings);
+    strict_check(rules, warnings)?;
     let bytes = r.encode(export).map_err(|e| Failure::new(EXIT_OUTPUT, e.to_string()))?;
-    write_atomic(&job.output, &bytes, force)?;
-    let m = Measured {
-        duration_s: clip.duration_s(),
+    write_atomic(&job.output, &bytes, rules.replace)?;
+    Ok(Measured {
+        duration_s: input.clip.duration_s(),
         peak_dbfs: r.report.output.peak_dbfs,
         clipped: r.report.clipped,
         sqnr_db: r.report.sqnr_db,
         bytes: bytes.len() as u64,
         loop_frames: r.export_meta.loops.first().map(|l| (l.start, l.end)),
-    };
-    Ok((m, meta.warnings))
+        output_sha256: rules.hash.then(|| manifest::sha256(&bytes)),
+    })
 }
 
-fn render_one(
-    job: &Job,
-    preset: &Preset,
-    export: &ExportFormat,
+/// The export for one input: a C array's name template gets the input's stem.
+fn export_for(export: &ExportFormat, stem: &str) -> ExportFormat {
+    match export {
+        ExportFormat::CArray { element, name } => {
+            ExportFormat::CArray { element: *element, name: io::c_array::name_for(name, stem) }
+        }
+        other => other.clone(),
+    }
+}
+
+/// What to do with one output.
+enum Action {
+    Create,
+    Replace(String),
+    Skip(Entry),
+    Refuse(String),
+}
+
+/// Settings shared by every job of a batch.
+struct Batch<'a> {
+    preset: &'a Preset,
+    export: &'a ExportFormat,
+    preset_sha256: String,
     force: bool,
-    progress: Option<&ProgressBar>,
-) -> Outcome {
-    let mut o = Outcome {
+    strict: bool,
+    dry_run: bool,
+    /// The manifests of --out-dir (none with -o).
+    known: Option<&'a Known>,
+}
+
+/// Decides what to do with a job's output. `want`: the manifest entry a render would record (its output hash empty).
+fn decide(job: &Job, b: &Batch, want: Option<&Entry>) -> Result<Action, Failure> {
+    let Ok(md) = job.output.symlink_metadata() else { return Ok(Action::Create) };
+    if !md.is_file() {
+        return Ok(Action::Refuse("exists and is not a file".into()));
+    }
+    let (Some(known), Some(want)) = (b.known, want) else {
+        return Ok(if b.force { Action::Replace("--force".into()) } else { Action::Refuse(EXISTS.into()) });
+    };
+    let out_sha = manifest::sha256_file(&job.output)
+        .map_err(|e| Failure::new(EXIT_OUTPUT, format!("{}: {e}", job.output.display())))?;
+    Ok(match known.describing(&job.key, &out_sha) {
+        None if b.force => Action::Replace("--force".into()),
+        None if known.has_key(&job.key) => {
+            Action::Refuse("exists and was changed since stairstep wrote it (use --force to replace it)".into())
+        }
+        None => Action::Refuse("exists and is not in stairstep's manifest (use --force to replace it)".into()),
+        Some(e) => match e.stale_because(want) {
+            None if b.force => Action::Replace("--force".into()),
+            None => Action::Skip(e.clone()),
+            Some(why) => Action::Replace(format!("stale: {why}")),
+        },
+    })
+}
+
+fn outcome(job: &Job) -> Outcome {
+    Outcome {
         input: job.input.clone(),
         output: job.output.clone(),
         ok: false,
+        action: "create",
+        reason: None,
         error: None,
         duration_s: None,
         peak_dbfs: None,
@@ -324,23 +556,73 @@ fn render_one(
         warnings: Vec::new(),
         loop_frames: None,
         code: 0,
-    };
+    }
+}
+
+/// Decides, then (unless --dry-run) renders one job; sends its manifest entry to the writer.
+fn render_one(job: &Job, b: &Batch, tx: Option<&Sender<(String, Entry)>>, progress: Option<&ProgressBar>) -> Outcome {
+    let mut o = outcome(job);
+    let export = export_for(b.export, &job.stem);
     let result = (|| -> Result<(), Failure> {
-        if !force && job.output.exists() {
-            return Err(Failure::new(EXIT_OUTPUT, "output exists (use --force to replace it)"));
+        let want = match b.known {
+            Some(_) => Some(Entry {
+                input: job.input.clone(),
+                input_sha256: manifest::sha256_file(&job.input).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?,
+                preset_sha256: b.preset_sha256.clone(),
+                export: serde_json::to_value(&export).unwrap_or_default(),
+                tool: manifest::tool(),
+                output_sha256: String::new(),
+                warnings: Vec::new(),
+            }),
+            None => None,
+        };
+        let replace = match decide(job, b, want.as_ref())? {
+            Action::Create => false,
+            Action::Replace(why) => {
+                o.action = "replace";
+                o.reason = Some(why);
+                true
+            }
+            Action::Skip(e) => {
+                o.action = "skip";
+                o.reason = Some("up to date".into());
+                // The warnings of the render that wrote it are not lost on a re-run.
+                o.warnings = e.warnings.clone();
+                if let (Some(tx), false) = (tx, b.dry_run) {
+                    let _ = tx.send((job.key.clone(), e));
+                }
+                if b.strict && !o.warnings.is_empty() {
+                    return Err(Failure::new(
+                        EXIT_INPUT,
+                        "--strict: the warnings above were recorded when this output was written (it is left as it is; \
+                         fix the input, or remove the output to render it again)",
+                    ));
+                }
+                return Ok(());
+            }
+            Action::Refuse(why) => {
+                o.action = "refuse";
+                o.reason = Some(why.clone());
+                return Err(Failure::new(EXIT_OUTPUT, why));
+            }
+        };
+        if b.dry_run {
+            return Ok(());
         }
         if let Some(parent) = job.output.parent() {
             std::fs::create_dir_all(parent)
                 .map_err(|e| Failure::new(EXIT_OUTPUT, format!("{}: {e}", parent.display())))?;
         }
-        let m = match render_streaming(job, preset, export, force, progress)? {
+        let rules = WriteRules { replace, strict: b.strict, hash: want.is_some() };
+        let m = match render_streaming(job, b.preset, &export, &rules, &mut o.warnings, progress)? {
             Some(m) => m,
-            None => {
-                let (m, warnings) = render_in_memory(job, preset, export, force)?;
-                o.warnings = warnings;
-                m
-            }
+            None => render_in_memory(job, b.preset, &export, &rules, &mut o.warnings)?,
         };
+        if let (Some(tx), Some(mut e), Some(sha)) = (tx, want, m.output_sha256) {
+            e.output_sha256 = sha;
+            e.warnings = o.warnings.clone();
+            let _ = tx.send((job.key.clone(), e));
+        }
         o.duration_s = Some(m.duration_s);
         o.peak_dbfs = Some(m.peak_dbfs);
         o.clipped = Some(m.clipped);
@@ -359,6 +641,40 @@ fn render_one(
     o
 }
 
+/// The lines a finished job prints on standard error (failures and warnings even with --quiet).
+fn lines(o: &Outcome, quiet: bool) -> Vec<String> {
+    let mut v: Vec<String> = o.warnings.iter().map(|w| format!("warn {}: {w}", o.input.display())).collect();
+    match (&o.error, o.action) {
+        (Some(e), _) => v.push(format!("FAIL {}: {e}", o.input.display())),
+        (None, _) if quiet => {}
+        (None, "skip") => v.push(format!("up to date  {}", o.output.display())),
+        (None, action) => {
+            let why = o.reason.as_deref().map(|r| format!("; replaced: {r}")).unwrap_or_default();
+            let done = if action == "replace" { why } else { String::new() };
+            v.push(format!(
+                "ok   {} -> {} ({} bytes{done})",
+                o.input.display(),
+                o.output.display(),
+                o.bytes.unwrap_or(0)
+            ))
+        }
+    }
+    v
+}
+
+/// The line --dry-run prints on standard output for a job.
+fn dry_line(o: &Outcome) -> String {
+    let verb = match (o.action, &o.error) {
+        ("refuse", _) => "refuse ",
+        (_, Some(_)) => "fail   ",
+        ("skip", _) => "skip   ",
+        ("replace", _) => "replace",
+        _ => "render ",
+    };
+    let why = o.reason.as_deref().or(o.error.as_deref()).map(|r| format!(": {r}")).unwrap_or_default();
+    format!("{verb} {} -> {}{why}", o.input.display(), o.output.display())
+}
+
 pub fn run(args: Args) -> Result<(), Failure> {
     let mut preset = load_preset(&args.preset)?;
     if let Some(f) = &args.format {
@@ -366,8 +682,30 @@ pub fn run(args: Args) -> Result<(), Failure> {
         preset.validate().map_err(|e| Failure::new(EXIT_USAGE, format!("--format: {e}")))?;
     }
     let export = preset.export.clone();
-    let jobs = plan(&args, &preset, &export)?;
-    let interactive = std::io::stderr().is_terminal() && !args.quiet;
+    let mut jobs = plan(&args, &preset, &export)?;
+    let total = jobs.len();
+    if let Some((k, n)) = args.shard {
+        jobs.retain(|j| manifest::hash64(&j.key) % n == k - 1);
+    }
+    // The manifest: with --out-dir only; each shard keeps its own file.
+    let own_name = match args.shard {
+        Some((k, n)) => format!(".stairstep-manifest.{k}-of-{n}.json"),
+        None => manifest::FILE.to_string(),
+    };
+    let known = args.out_dir.as_ref().map(|d| Known::load(d, &own_name));
+    for p in known.iter().flat_map(|k| &k.problems) {
+        eprintln!("warn {p}");
+    }
+    let batch = Batch {
+        preset: &preset,
+        export: &export,
+        preset_sha256: manifest::sha256(preset.to_json().as_bytes()),
+        force: args.force,
+        strict: args.strict,
+        dry_run: args.dry_run,
+        known: known.as_ref(),
+    };
+    let interactive = std::io::stderr().is_terminal() && !args.quiet && !args.dry_run;
     let bar = if interactive && jobs.len() > 1 {
         let b = ProgressBar::new(jobs.len() as u64);
         b.set_style(
@@ -387,19 +725,24 @@ pub fn run(args: Args) -> Result<(), Failure> {
         );
         b
     });
-    let print_lock = Mutex::new(());
+    // The manifest's one writer (not for --dry-run, which writes nothing).
+    let writer = known.as_ref().filter(|_| !args.dry_run).map(Known::writer);
+    let tx = writer.as_ref().map(|w| w.sender());
     let work = |job: &Job| {
-        let o = render_one(job, &preset, &export, args.force, frame_bar.as_ref());
-        if let Some(b) = &bar {
-            b.set_message(job.input.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default());
-            b.inc(1);
-        } else if !args.quiet && !args.json {
-            let _g = print_lock.lock();
-            match &o.error {
-                None => {
-                    eprintln!("ok   {} -> {} ({} bytes)", o.input.display(), o.output.display(), o.bytes.unwrap_or(0))
+        let o = render_one(job, &batch, tx.as_ref(), frame_bar.as_ref());
+        if !args.dry_run {
+            let text = lines(&o, args.quiet || bar.is_some()).join("\n");
+            match &bar {
+                Some(b) => {
+                    b.set_message(job.input.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default());
+                    b.inc(1);
+                    if !text.is_empty() {
+                        b.suspend(|| eprintln!("{text}"));
+                    }
                 }
-                Some(e) => eprintln!("FAIL {}: {e}", o.input.display()),
+                // One eprintln per job: lines of parallel jobs do not interleave.
+                None if !text.is_empty() => eprintln!("{text}"),
+                None => {}
             }
         }
         o
@@ -412,27 +755,33 @@ pub fn run(args: Args) -> Result<(), Failure> {
             .install(|| jobs.par_iter().map(work).collect()),
         None => jobs.par_iter().map(work).collect(),
     };
+    drop(tx);
     for b in bar.iter().chain(frame_bar.iter()) {
         b.finish_and_clear();
     }
+    let manifest_result = writer.map_or(Ok(()), |w| w.finish());
     if args.json {
         println!("{}", serde_json::to_string_pretty(&outcomes).unwrap_or_default());
-    }
-    let failed: Vec<&Outcome> = outcomes.iter().filter(|o| !o.ok).collect();
-    if !args.quiet {
-        eprintln!("{} rendered, {} failed", outcomes.len() - failed.len(), failed.len());
-        for f in &failed {
-            eprintln!("  {}: {}", f.input.display(), f.error.as_deref().unwrap_or("?"));
+    } else if args.dry_run {
+        for o in &outcomes {
+            println!("{}", dry_line(o));
         }
     }
-    if failed.is_empty() {
+    let failed = outcomes.iter().filter(|o| !o.ok).count();
+    let skipped = outcomes.iter().filter(|o| o.ok && o.action == "skip").count();
+    let rendered = outcomes.len() - failed - skipped;
+    if !args.quiet && (outcomes.len() != 1 || args.shard.is_some()) {
+        let shard = args.shard.map(|(k, n)| format!(" (shard {k}/{n}: {} of {total} files)", outcomes.len()));
+        let verb = if args.dry_run { "to render" } else { "rendered" };
+        let failed_word = if args.dry_run { "refused or failing" } else { "failed" };
+        eprintln!("{rendered} {verb}, {skipped} up to date, {failed} {failed_word}{}", shard.unwrap_or_default());
+    }
+    manifest_result?;
+    if failed == 0 {
         Ok(())
     } else if outcomes.len() == 1 {
-        Err(Failure::new(
-            failed[0].code,
-            format!("{}: {}", failed[0].input.display(), failed[0].error.as_deref().unwrap_or("")),
-        ))
+        Err(Failure::reported(outcomes[0].code))
     } else {
-        Err(Failure::new(EXIT_INPUT, format!("{} of {} files failed", failed.len(), outcomes.len())))
+        Err(Failure::reported(EXIT_INPUT))
     }
 }

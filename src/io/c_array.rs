@@ -82,9 +82,45 @@ const KEYWORDS: [&str; 37] = [
     "_Imaginary",
 ];
 
+/// The placeholder a name may hold so that a batch gives each header its own array name: `"sfx_{stem}"` names the
+/// array of `coin.wav` `sfx_coin` (see [`name_for`]).
+pub const STEM: &str = "{stem}";
+
+/// The array name for a sound whose file name without extension is `stem`: `template` with [`STEM`] replaced by the
+/// stem made a C identifier (characters other than ASCII letters, digits and `_` become `_`; leading `_` dropped; a
+/// leading digit gets a `_` before it; a keyword or a name ending in `_t` gets a `_` after it; at most 63
+/// characters). A name without the placeholder is returned as it is. Where no file name is known (the page, a
+/// library call), the stem is `sound`.
+pub fn name_for(template: &str, stem: &str) -> String {
+    if !template.contains(STEM) {
+        return template.to_string();
+    }
+    let clean: String = stem.chars().map(|c| if c.is_ascii_alphanumeric() { c } else { '_' }).collect();
+    let clean = clean.trim_start_matches('_');
+    let mut name = template.replace(STEM, if clean.is_empty() { "sound" } else { clean });
+    if name.starts_with(|c: char| c.is_ascii_digit()) {
+        name.insert(0, '_');
+    }
+    name.truncate(62);
+    if KEYWORDS.contains(&name.as_str()) || name.ends_with("_t") {
+        name.push('_');
+    }
+    if check_name(&name).is_ok() {
+        name
+    } else {
+        template.replace(STEM, "sound")
+    }
+}
+
 /// Checks that `name` can name the array: a C identifier of 1 to 63 characters (`[A-Za-z_][A-Za-z0-9_]*`), not a
-/// keyword, not starting with `__` or `_` + capital (reserved), not ending in `_t` (reserved for types).
+/// keyword, not starting with `__` or `_` + capital (reserved), not ending in `_t` (reserved for types). A name with
+/// the placeholder [`STEM`] is checked with a stem of `sound` in its place.
 pub fn check_name(name: &str) -> Result<()> {
+    if name.contains(STEM) {
+        let sample = name.replace(STEM, "sound");
+        return check_name(&sample)
+            .map_err(|_| Error::param("name", format!("{name:?}"), format!("a C identifier once {STEM} is replaced")));
+    }
     let bad = |why: &str| Err(Error::param("name", format!("{name:?}"), format!("a C identifier ({why})")));
     let mut chars = name.chars();
     match chars.next() {
@@ -161,6 +197,7 @@ fn tail(name: &str) -> String {
 
 /// Exact output size in bytes (0 for an invalid name).
 pub fn file_size(e: CElement, name: &str, frames: usize, channels: usize, meta: &ExportMeta) -> u64 {
+    let name = &name_for(name, "sound");
     if check_name(name).is_err() {
         return 0;
     }
@@ -178,6 +215,7 @@ pub fn file_size(e: CElement, name: &str, frames: usize, channels: usize, meta: 
 /// Writes the header.
 pub fn write(clip: &Clip, e: CElement, name: &str, meta: &ExportMeta) -> Result<Vec<u8>> {
     check_name(name)?;
+    let name = &name_for(name, "sound");
     super::check_clip(clip)?;
     meta.validate(clip.frames())?;
     let (w, per_line) = geometry(e);

@@ -143,6 +143,11 @@ pub fn read_with_meta(bytes: &[u8]) -> Result<(Clip, WavMeta)> {
     };
     debug_assert_eq!(out.len(), channels);
     let frames = out.first().map_or(0, |c| c.len());
+    if let Some((i, declared)) = found.data_cut {
+        let declared_frames = declared / (f.block_align.max(1) as usize) * f.samples_per_block.map_or(1, usize::from);
+        let w = truncation(declared_frames as u64, frames as u64, &meta.warnings[i]);
+        meta.warnings[i] = w;
+    }
     if let Some(s) = found.smpl {
         parse_smpl(s, frames, &mut meta);
     }
@@ -151,6 +156,12 @@ pub fn read_with_meta(bytes: &[u8]) -> Result<(Clip, WavMeta)> {
     }
     let clip = Clip::new(meta.format.sample_rate, out)?;
     Ok((clip, meta))
+}
+
+/// The warning for a `data` chunk cut short: it starts `truncated: header says N frames, M present` (for scripts to
+/// match), then gives the detail.
+pub(super) fn truncation(declared_frames: u64, present_frames: u64, detail: &str) -> String {
+    format!("truncated: header says {declared_frames} frames, {present_frames} present ({detail})")
 }
 
 fn u16_at(b: &[u8], i: usize) -> u16 {
@@ -189,6 +200,8 @@ struct Found<'a> {
     cue: Option<&'a [u8]>,
     /// Why the chunk walk ended before the end of the file, if it did.
     stop: Option<String>,
+    /// A `data` chunk cut short: the index of its warning and the size its header declares.
+    data_cut: Option<(usize, usize)>,
 }
 
 /// Checks the RIFF header and walks the chunks.
@@ -283,6 +296,7 @@ fn scan<'a>(bytes: &'a [u8], warnings: &mut Vec<String>) -> Result<Found<'a>> {
                     return Err(Error::format("more than one `data` chunk"));
                 }
                 if truncated {
+                    found.data_cut = Some((warnings.len(), size));
                     warnings.push(past_end(&format!(": read the {avail} bytes present")));
                 }
                 found.data = Some(body);

@@ -6,7 +6,7 @@
 //! nature), loops, raw and C-array outputs go through the in-memory [`read`](super::read) and writers instead.
 //! Both produce exactly the bytes and samples of the in-memory functions.
 
-use super::read::{decode_frames, parse_fmt};
+use super::read::{decode_frames, parse_fmt, truncation};
 use super::write::{body_append, header, trailer};
 use super::{WavFormat, WAVE_FORMAT_IMA_ADPCM};
 use crate::error::{Error, Result};
@@ -59,8 +59,11 @@ impl<R: Read + Seek> StreamReader<R> {
                     }
                     let avail = size.min(len - body);
                     if avail < size {
-                        warnings.push(format!(
-                            "`data` chunk declares {size} bytes but the file ends after {avail}: reading what is there"
+                        let ba = f.block_align.max(1) as u64;
+                        warnings.push(truncation(
+                            size / ba,
+                            avail / ba,
+                            &format!("`data` chunk declares {size} bytes but the file ends after {avail}"),
                         ));
                     }
                     // Loops after the samples (`smpl`, `cue `) need the in-memory reader, which keeps them.
