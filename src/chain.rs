@@ -193,6 +193,7 @@ impl Chain {
         for ch in 0..channels {
             let mut nodes = Vec::with_capacity(preset.stages.len());
             let mut rate_at = None;
+            let mut rate_here = sample_rate;
             for (i, slot) in preset.stages.iter().enumerate() {
                 let at = |e: Error| e.at(&format!("stages[{i}]"));
                 if slot.bypass {
@@ -205,11 +206,13 @@ impl Chain {
                         let reducer = RateReducer::new(p, sample_rate, BLOCK).map_err(at)?;
                         let expander = RateExpander::new(p, sample_rate, BLOCK).map_err(at)?;
                         export_rate = reducer.target_rate();
+                        rate_here = export_rate;
                         rate_at = Some(i);
                         Node::Rate { reducer, expander }
                     }
                     spec => Node::Plain(
-                        stages::build(spec, preset.seed, (i * 64 + ch) as u64)
+                        stages::check_rate(spec, rate_here)
+                            .and_then(|_| stages::build(spec, preset.seed, (i * 64 + ch) as u64))
                             .map_err(at)?
                             .expect("a rate-keeping stage"),
                     ),

@@ -172,6 +172,11 @@ impl G721 {
         let code = code & 15;
         let st = self.estimate();
         let sr = self.finish(code, st);
+        self.output(sr)
+    }
+
+    /// The 16-bit sample for a reconstructed signal `sr` (see the module docs).
+    fn output(&self, sr: i32) -> i16 {
         match self.arith {
             Arith::Itu => (sr.clamp(-8192, 8191) << 2) as i16,
             Arith::Libsndfile => (sr << 2) as i16,
@@ -180,6 +185,11 @@ impl G721 {
 
     /// Encodes one 16-bit sample into a 4-bit code; the state afterwards equals the decoder's after that code.
     pub fn encode(&mut self, x: i16) -> u8 {
+        self.round_trip(x).0
+    }
+
+    /// Encodes one sample and returns the code and the sample a decoder plays for it.
+    pub fn round_trip(&mut self, x: i16) -> (u8, i16) {
         let sl = (x as i32) >> 2;
         let st = self.estimate();
         // SUBTA, then LOG, SUBTB and QUAN: the difference quantized in the log domain.
@@ -197,8 +207,8 @@ impl G721 {
         } else {
             i
         } as u8;
-        self.finish(code, st);
-        code
+        let sr = self.finish(code, st);
+        (code, self.output(sr))
     }
 
     /// ADDB, ADDC and the state update (adaptation, predictor update, tone and transition detection) for `code`;
