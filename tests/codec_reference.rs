@@ -343,6 +343,9 @@ fn g721_needs_8000_hz() {
         "export":{"type":"wav","encoding":"g721"}}"#,
     )
     .unwrap();
+    // Every channel's stages see the rate at their place in the chain (the second channel's too).
+    let stereo = clip_of(&signal(4410, 2), 44_100);
+    assert_eq!(stairstep::render::render(&good, &stereo).unwrap().export.channel_count(), 2);
     let r = stairstep::render::render(&good, &input).unwrap();
     assert_eq!(r.export.sample_rate, 8000);
     let file = good.export.encode(&r.export).unwrap();
