@@ -189,3 +189,65 @@ impl Stage for CodecRoundTrip {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::stages::StageSpec;
+
+    fn run(spec: &str, input: &[f32]) -> Vec<f32> {
+        let spec: StageSpec = serde_json::from_str(spec).unwrap();
+        let mut st = crate::stages::build(&spec, 0, 0).unwrap().unwrap();
+        let mut buf = input.to_vec();
+        for part in buf.chunks_mut(100) {
+            st.process(part);
+        }
+        buf
+    }
+
+    /// `{"kind": "adpcm"}` and `{"kind": "codec", "codec": "ima-adpcm"}` give the same samples, block size included.
+    #[test]
+    fn ima_is_the_adpcm_stage() {
+        let x: Vec<f32> = (0..3000).map(|i| (i as f32 * 0.013).sin() * 0.7).collect();
+        assert_eq!(run(r#"{"kind":"adpcm"}"#, &x), run(r#"{"kind":"codec"}"#, &x));
+        assert_eq!(
+            run(r#"{"kind":"adpcm","samples_per_block":1017}"#, &x),
+            run(r#"{"kind":"codec","codec":"ima-adpcm","samples_per_block":1017}"#, &x)
+        );
+    }
+
+    #[test]
+    fn params_are_checked_and_name_the_field() {
+        for (codec, spb) in [
+            (CodecName::ImaAdpcm, 10),
+            (CodecName::MsAdpcm, 3),
+            (CodecName::MsAdpcm, 501),
+            (CodecName::MsAdpcm, 40_000),
+            (CodecName::G721, 500),
+            (CodecName::VoxAdpcm, 500),
+        ] {
+            let e = CodecRoundTrip::new(&CodecParams { codec, samples_per_block: Some(spb) }).unwrap_err();
+            assert!(e.to_string().contains("samples_per_block"), "{codec:?} {spb}: {e}");
+        }
+        let e = CodecName::G721.check_rate(44_100).unwrap_err().to_string();
+        assert!(e.contains("add a rate stage with rate_hz 8000"), "{e}");
+        assert!(CodecName::G721.check_rate(8000).is_ok());
+        assert!(CodecName::MsAdpcm.check_rate(44_100).is_ok());
+    }
+
+    /// Every codec: reset restarts exactly; a full-scale sample is counted as clipped.
+    #[test]
+    fn reset_restarts_and_clips_are_counted() {
+        for codec in [CodecName::ImaAdpcm, CodecName::MsAdpcm, CodecName::G721, CodecName::VoxAdpcm] {
+            let mut st = CodecRoundTrip::new(&CodecParams { codec, samples_per_block: None }).unwrap();
+            let mut a: Vec<f32> = (0..1200).map(|i| (i as f32 * 0.05).sin() * 0.5).collect();
+            a[7] = 1.0;
+            let mut b = a.clone();
+            st.process(&mut a);
+            assert_eq!(st.clipped(), 1, "{codec:?}");
+            st.reset();
+            st.process(&mut b);
+            assert_eq!(a, b, "{codec:?}");
+        }
+    }
+}
