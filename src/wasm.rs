@@ -6,8 +6,8 @@
 use crate::analysis::{envelope, SpectrumAnalyzer, Window};
 use crate::prep::PrepParams;
 use crate::render::{self, Render};
-use crate::{demo, io, Clip, Error, Preset};
 use crate::{sample, stages};
+use crate::{demo, io, Clip, Error, Preset};
 use std::borrow::Cow;
 use wasm_bindgen::prelude::*;
 
@@ -631,12 +631,12 @@ impl LiveChain {
 /// The parts of [`LiveChain`] that need no JS.
 mod live {
     use crate::chain::{Chain, ChainOutput, UNBOUNDED};
+    use crate::stages::BLOCK;
     use crate::preset::Preset;
     use crate::stages::dither::DitherKind;
     use crate::stages::quantize::Grid;
     use crate::stages::rate::{RateExpander, RateMode, RateReducer};
     use crate::stages::StageSpec;
-    use crate::stages::BLOCK;
     use crate::Result;
 
     /// dB to a linear factor, clamped to −120..+60 dB; NaN keeps the factor at its old value (returns None).
