@@ -28,10 +28,11 @@
 //!   which costs a few dB), among the codes that keep `delta` within 16 bits.
 //!
 //! # Quirk: the 16-bit delta
-//! libsndfile keeps `delta` in a 16-bit integer, so a delta above 32,767 (only from a hostile or broken encoder:
-//! three growth steps of the largest code in a row from a big delta) wraps there, while the format's description uses
-//! plain integers. This decoder follows the description; our encoder never lets delta leave 16 bits, so both
-//! decoders agree on every file we write.
+//! The format's description computes `delta` in plain integers; libsndfile keeps it in a 16-bit integer, so a delta
+//! above 32,767 (only from a hostile or broken encoder: a run of the largest codes from a big delta) wraps there.
+//! This decoder wraps as libsndfile does: it then agrees with libsndfile on every file, and a hostile file cannot
+//! make the step grow without bound (it would overflow after about twenty codes otherwise). Our encoder never lets
+//! delta leave 16 bits, so on every file we write the description and libsndfile agree anyway.
 //!
 //! # The last block
 //! A partial last block is completed with silence (0) and written whole; the `fact` chunk holds the true frame count.
@@ -117,9 +118,17 @@ impl MsState {
         (predict + e * self.delta).clamp(i16::MIN as i32, i16::MAX as i32) as i16
     }
 
+    /// The step after `code`, kept in 16 bits as libsndfile keeps it (see the module docs).
     #[inline]
     fn next_delta(&self, code: u8) -> i32 {
-        ((ADAPTATION[(code & 15) as usize] * self.delta) >> 8).max(MIN_DELTA)
+        let d = ((ADAPTATION[(code & 15) as usize] * self.delta) >> 8) as i16 as i32;
+        d.max(MIN_DELTA)
+    }
+
+    /// The step after `code` without the 16-bit limit (what the encoder must keep below 32,768).
+    #[inline]
+    fn next_delta_wide(&self, code: u8) -> i32 {
+        (ADAPTATION[(code & 15) as usize] * self.delta) >> 8
     }
 
     /// Decodes one code and returns the sample.
@@ -139,7 +148,7 @@ impl MsState {
         let p = self.predict();
         let mut best = (u32::MAX, 0u8);
         for code in 0..16u8 {
-            if self.next_delta(code) > i16::MAX as i32 {
+            if self.next_delta_wide(code) > i16::MAX as i32 {
                 continue;
             }
             let err = (x as i32 - self.reconstruct(p, code) as i32).unsigned_abs();
@@ -376,6 +385,15 @@ mod tests {
         }
         assert_eq!(block_align_for(501, 1), None);
         assert!(samples_per_block(512, 3).unwrap_err().to_string().contains("channels"));
+    }
+
+    /// A hostile block (the largest code over and over from the largest delta) decodes without overflow.
+    #[test]
+    fn hostile_codes_do_not_overflow() {
+        let mut block = vec![0u8, 0xFF, 0x7F, 0, 0, 0, 0];
+        block.extend(std::iter::repeat_n(0x88u8, 500));
+        let (out, _) = decode_blocks(&block, 1, block.len(), u64::MAX).unwrap();
+        assert_eq!(out[0].len(), 2 + 1000);
     }
 
     /// Encoder and decoder stay in step, blocks round-trip, and the encoder tracks a sine closely.
