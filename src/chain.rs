@@ -202,6 +202,7 @@ impl Chain {
         for ch in 0..channels {
             let mut nodes = Vec::with_capacity(preset.stages.len());
             let mut rate_at = None;
+            let mut rate_here = sample_rate;
             for (i, slot) in preset.stages.iter().enumerate() {
                 let at = |e: Error| e.at(&format!("stages[{i}]"));
                 if slot.bypass {
@@ -214,11 +215,14 @@ impl Chain {
                         let reducer = RateReducer::new(p, sample_rate, BLOCK).map_err(at)?;
                         let expander = RateExpander::new(p, sample_rate, BLOCK).map_err(at)?;
                         export_rate = reducer.target_rate();
+                        rate_here = export_rate;
                         rate_at = Some(i);
                         Node::Rate { reducer, expander }
                     }
+                    // Each stage is built for the rate where it runs (reset for every channel).
                     spec => Node::Plain {
-                        stage: stages::build(spec, export_rate, preset.seed, (i * 64 + ch) as u64)
+                        stage: stages::check_rate(spec, rate_here)
+                            .and_then(|_| stages::build(spec, rate_here, preset.seed, (i * 64 + ch) as u64))
                             .map_err(at)?
                             .expect("a rate-keeping stage"),
                         mix: slot.mix,

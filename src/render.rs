@@ -4,7 +4,7 @@
 
 use crate::audio::Clip;
 use crate::chain::{Chain, Processed, RenderReport};
-use crate::codec::ima_adpcm;
+use crate::codec::{ima_adpcm, ms_adpcm};
 use crate::error::{Error, Result};
 use crate::io::{ExportFormat, ExportMeta, SampleLoop, WavEncoding};
 use crate::prep::{self, LoopRegion, PrepReport};
@@ -79,16 +79,24 @@ pub fn render_with_loop(preset: &Preset, input: &Clip, file_loop: Option<(u64, u
 }
 
 /// A loop in chain-input frames (end exclusive) as the export's `smpl` loop: rescaled exactly to the export rate
-/// ([`prep::rescale_loop`]: the export samples that come from inside the loop), snapped to whole blocks for IMA ADPCM
-/// (a decoder can only restart at a block header; [`prep::snap_to_block`]), end made inclusive as `smpl` wants.
+/// ([`prep::rescale_loop`]: the export samples that come from inside the loop), snapped to whole blocks for IMA and
+/// Microsoft ADPCM (a decoder can only restart at a block header; [`prep::snap_to_block`]), end made inclusive as
+/// `smpl` wants.
 fn export_loop(start: u64, end: u64, r: &Processed, format: &ExportFormat) -> Result<SampleLoop> {
     let (mut s, mut e) = prep::rescale_loop(start, end, r.report.source_rate, r.report.export_rate);
-    if let ExportFormat::Wav { encoding: WavEncoding::ImaAdpcm, block_align } = format {
-        let ch = r.export.channel_count();
-        let spb = ima_adpcm::samples_per_block(
+    let ch = r.export.channel_count();
+    let spb = match format {
+        ExportFormat::Wav { encoding: WavEncoding::ImaAdpcm, block_align } => Some(ima_adpcm::samples_per_block(
             block_align.map_or_else(|| ima_adpcm::default_block_align(ch), |b| b as usize),
             ch,
-        )?;
+        )?),
+        ExportFormat::Wav { encoding: WavEncoding::MsAdpcm, block_align } => Some(ms_adpcm::samples_per_block(
+            block_align.map_or_else(|| ms_adpcm::default_block_align(ch), |b| b as usize),
+            ch,
+        )?),
+        _ => None,
+    };
+    if let Some(spb) = spb {
         (s, e) = prep::snap_to_block(s, e, spb as u64).map_err(|e| e.at("prep"))?;
     }
     let frames = r.export.frames() as u64;

@@ -16,12 +16,19 @@ fn process_block_does_not_allocate_after_warm_up() {
     assert!(allocations(|| drop(std::hint::black_box(vec![1u8; 10]))) >= 1);
     let n = 48_000 * 3;
     let x: Vec<f32> = (0..n).map(|i| ((i as f32) * 0.013).sin() * 0.8).collect();
-    for mode in ["hold", "clean"] {
+    for (mode, rate, codecs) in [
+        ("hold", 11025, r#"{"kind":"codec","codec":"ms-adpcm"},{"kind":"codec","codec":"vox-adpcm"},{"kind":"delta"}"#),
+        (
+            "clean",
+            8000,
+            r#"{"kind":"codec","codec":"g721"},{"kind":"codec","codec":"ms-adpcm","samples_per_block":64}"#,
+        ),
+    ] {
         let json = format!(
             r#"{{"format":"stairstep-preset","version":1,"stages":[
             {{"kind":"gain","gain_db":3,"overflow":"fold"}},{{"kind":"compand","bits":9}},
-            {{"kind":"rate","rate_hz":11025,"mode":"{mode}"}},{{"kind":"minifloat"}},{{"kind":"g711"}},{{"kind":"adpcm"}},
-            {{"kind":"quantize","bits":6,"dither":"tpdf","shaping":"ewt9"}}]}}"#
+            {{"kind":"rate","rate_hz":{rate},"mode":"{mode}"}},{{"kind":"minifloat"}},{{"kind":"g711"}},{{"kind":"adpcm"}},
+            {codecs},{{"kind":"quantize","bits":6,"dither":"tpdf","shaping":"ewt9"}}]}}"#
         );
         let p = Preset::from_json(&json).unwrap();
         let mut chain = Chain::new(&p, 2, 48_000, n).unwrap();

@@ -157,7 +157,10 @@ fn fatal_cases() -> Vec<(&'static str, Vec<u8>, &'static str)> {
         ("16-bit mu-law", riff(&[fmt_chunk(7, 1, 8000, 2, 16), data16(4)]), "mu-law with 16 bits per sample"),
         ("A-law block align", riff(&[fmt_chunk(6, 2, 8000, 1, 8), data16(4)]), "block align 1 does not match 2"),
         ("MP3", riff(&[fmt_chunk(0x55, 1, 8000, 1, 16), data16(4)]), "unsupported format tag 0x0055 (MPEG Layer 3)"),
-        ("MS ADPCM", riff(&[fmt_chunk(2, 1, 8000, 256, 4), data16(4)]), "unsupported format tag 0x0002"),
+        ("MPEG Layer 3", riff(&[fmt_chunk(0x55, 1, 8000, 1, 16), data16(4)]), "unsupported format tag 0x0055"),
+        ("MS ADPCM, block too small", riff(&[fmt_chunk(2, 1, 8000, 7, 4), data16(4)]), "Microsoft ADPCM block align 7"),
+        ("MS ADPCM, 3 channels", riff(&[fmt_chunk(2, 3, 8000, 768, 4), data16(4)]), "1 or 2"),
+        ("G.721 stereo", riff(&[fmt_chunk(0x40, 2, 8000, 60, 4), data16(4)]), "G.721 with 2 channels"),
         (
             "ADPCM block align not a multiple of 4",
             riff(&[fmt_adpcm(1, 250, 4, 497), data16(4)]),

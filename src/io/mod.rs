@@ -9,6 +9,7 @@
 //! rounding.
 
 pub mod c_array;
+mod codecs;
 pub mod raw;
 pub mod wav;
 
@@ -38,11 +39,15 @@ pub enum WavEncoding {
     Alaw,
     /// IMA ADPCM, 4 bits (format tag 0x11), see [`crate::codec::ima_adpcm`].
     ImaAdpcm,
+    /// Microsoft ADPCM, 4 bits (format tag 0x0002; 1 or 2 channels), see [`crate::codec::ms_adpcm`].
+    MsAdpcm,
+    /// ITU-T G.721 32 kbit/s ADPCM (format tag 0x0040; one channel at 8000 Hz), see [`crate::codec::g721`].
+    G721,
 }
 
 impl WavEncoding {
     /// Every encoding, in declaration order.
-    pub const ALL: [WavEncoding; 8] = [
+    pub const ALL: [WavEncoding; 10] = [
         WavEncoding::PcmU8,
         WavEncoding::PcmS16,
         WavEncoding::PcmS24,
@@ -51,6 +56,8 @@ impl WavEncoding {
         WavEncoding::Mulaw,
         WavEncoding::Alaw,
         WavEncoding::ImaAdpcm,
+        WavEncoding::MsAdpcm,
+        WavEncoding::G721,
     ];
 
     /// The name used in presets, e.g. `pcm-s16`.
@@ -64,7 +71,14 @@ impl WavEncoding {
             WavEncoding::Mulaw => "mulaw",
             WavEncoding::Alaw => "alaw",
             WavEncoding::ImaAdpcm => "ima-adpcm",
+            WavEncoding::MsAdpcm => "ms-adpcm",
+            WavEncoding::G721 => "g721",
         }
+    }
+
+    /// Whether samples map to whole bytes (PCM, float, G.711): what the streaming writer and reader handle.
+    pub fn is_byte_aligned(self) -> bool {
+        !matches!(self, WavEncoding::ImaAdpcm | WavEncoding::MsAdpcm | WavEncoding::G721)
     }
 }
 
@@ -106,8 +120,12 @@ pub enum CElement {
 /// How an export is written. JSON forms:
 ///
 /// - `{"type": "wav", "encoding": "pcm-s16"}`; `encoding` is one of `pcm-u8 pcm-s16 pcm-s24 pcm-s32 float32 mulaw
-///   alaw ima-adpcm`; `ima-adpcm` also takes `"block_align": 512` (bytes per block, all channels; default 256 per
-///   channel).
+///   alaw ima-adpcm ms-adpcm g721`; `ima-adpcm` and `ms-adpcm` also take `"block_align": 512` (bytes per block, all
+///   channels; default 256 per channel).
+/// - `{"type": "vox"}`: Dialogic 4-bit ADPCM, raw and headerless, one channel; see [`crate::codec::vox`].
+/// - `{"type": "delta-bits", "step": 0.02, "leak": 1.0, "bit_order": "msb-first"}`: the packed bit stream of a 1-bit
+///   delta modulator with that step and leak (one bit per sample, frames interleaved); see [`crate::codec::delta`].
+///   The bits of a chain that ends with a `delta` stage of the same step and leak are exactly that stage's.
 /// - `{"type": "raw", "bits": 4, "signed": false, "endian": "little", "bit_order": "msb-first"}`; see [`raw`].
 /// - `{"type": "c-array", "element": "uint8", "name": "coin"}`; see [`c_array`].
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -118,8 +136,8 @@ pub enum ExportFormat {
         /// Sample encoding.
         #[serde(default)]
         encoding: WavEncoding,
-        /// IMA ADPCM only: bytes per block including the per-channel headers, a multiple of 4 × channels.
-        /// `None`: 256 × channels (505 samples per block).
+        /// IMA and Microsoft ADPCM only: bytes per block including the per-channel headers (IMA: a multiple of
+        /// 4 × channels). `None`: 256 × channels (505 samples per block for IMA, 500 for Microsoft ADPCM).
         #[serde(default, skip_serializing_if = "Option::is_none")]
         block_align: Option<u32>,
     },
@@ -137,6 +155,19 @@ pub enum ExportFormat {
         #[serde(default)]
         bit_order: BitOrder,
     },
+    /// Dialogic 4-bit ADPCM, raw (`.vox`), one channel.
+    Vox,
+    /// The packed bit stream of a 1-bit delta modulator.
+    DeltaBits {
+        /// Integrator step in full-scale units (as the `delta` stage's `step`).
+        step: f64,
+        /// Integrator leak per sample (as the `delta` stage's `leak`). Default 1.0.
+        #[serde(default = "one")]
+        leak: f64,
+        /// Which bit of a byte the first sample takes. Default msb-first.
+        #[serde(default)]
+        bit_order: BitOrder,
+    },
     /// A C99 header holding the samples as an array, with length, rate and loop constants.
     CArray {
         /// Element type; default `int8`.
@@ -150,6 +181,10 @@ pub enum ExportFormat {
 
 fn yes() -> bool {
     true
+}
+
+fn one() -> f64 {
+    1.0
 }
 
 fn default_c_name() -> String {
@@ -258,6 +293,13 @@ impl ExportFormat {
         match self {
             ExportFormat::Wav { encoding, block_align } => match (encoding, block_align) {
                 (_, None) => Ok(()),
+                (WavEncoding::MsAdpcm, Some(b)) => {
+                    if !(8..=65_535).contains(b) {
+                        Err(Error::param("block_align", b, "8 to 65535 bytes (7 header bytes per channel and codes)"))
+                    } else {
+                        Ok(())
+                    }
+                }
                 (WavEncoding::ImaAdpcm, Some(b)) => {
                     if *b < 8 || b % 4 != 0 || *b > 65_532 {
                         Err(Error::param("block_align", b, "a multiple of 4 × channels, 8 to 65532 bytes"))
@@ -268,11 +310,15 @@ impl ExportFormat {
                 (e, Some(b)) => Err(Error::param(
                     "block_align",
                     b,
-                    format!("only with encoding \"ima-adpcm\" (encoding is {:?})", e.name()),
+                    format!("only with encoding \"ima-adpcm\" or \"ms-adpcm\" (encoding is {:?})", e.name()),
                 )),
             },
             ExportFormat::Raw { bits, .. } => raw::check_bits(*bits),
             ExportFormat::CArray { name, .. } => c_array::check_name(name),
+            ExportFormat::Vox => Ok(()),
+            ExportFormat::DeltaBits { step, leak, .. } => {
+                crate::stages::delta::DeltaParams { step: *step, leak: *leak }.validate()
+            }
         }
     }
 
@@ -280,7 +326,8 @@ impl ExportFormat {
     pub fn extension(&self) -> &'static str {
         match self {
             ExportFormat::Wav { .. } => "wav",
-            ExportFormat::Raw { .. } => "raw",
+            ExportFormat::Raw { .. } | ExportFormat::DeltaBits { .. } => "raw",
+            ExportFormat::Vox => "vox",
             ExportFormat::CArray { .. } => "h",
         }
     }
@@ -303,6 +350,9 @@ impl ExportFormat {
             }
             ExportFormat::Raw { bits, .. } => raw::file_size(*bits, frames, channels),
             ExportFormat::CArray { element, name } => c_array::file_size(*element, name, frames, channels, meta),
+            ExportFormat::Vox if channels == 1 => crate::codec::vox::byte_len(frames as u64),
+            ExportFormat::Vox => 0,
+            ExportFormat::DeltaBits { .. } => (frames as u64 * channels as u64).div_ceil(8),
         }
     }
 
@@ -324,6 +374,10 @@ impl ExportFormat {
                 &raw::RawLayout { bits: *bits, signed: *signed, endian: *endian, bit_order: *bit_order },
             ),
             ExportFormat::CArray { element, name } => c_array::write(clip, *element, name, meta),
+            ExportFormat::Vox => codecs::write_vox(clip),
+            ExportFormat::DeltaBits { step, leak, bit_order } => {
+                codecs::write_delta_bits(clip, *step, *leak, *bit_order)
+            }
         }
     }
 }

@@ -10,7 +10,9 @@
 //! [`build`], and its fields in [`mod@schema`].
 
 pub mod adpcm;
+pub mod codec;
 pub mod compand;
+pub mod delta;
 pub mod dither;
 pub mod filter;
 pub mod g711;
@@ -43,8 +45,14 @@ pub enum StageSpec {
     Compand(compand::CompandParams),
     /// Minifloat with chosen exponent and mantissa bits.
     Minifloat(minifloat::MinifloatParams),
-    /// IMA ADPCM (4-bit) encode then decode: hear what an ADPCM export will contain.
+    /// IMA ADPCM (4-bit) encode then decode: hear what an ADPCM export will contain. Kept for version-1 presets;
+    /// the same as `{"kind": "codec", "codec": "ima-adpcm"}`.
     Adpcm(adpcm::AdpcmParams),
+    /// A 4-bit codec (IMA or Microsoft ADPCM, G.721, Dialogic VOX) encoded then decoded: hear what its export will
+    /// contain.
+    Codec(codec::CodecParams),
+    /// 1-bit delta modulation (step, leak).
+    Delta(delta::DeltaParams),
     /// A biquad filter (or a cascade) from the Audio EQ Cookbook: band-limit before a hold, tame images after it.
     Filter(filter::FilterParams),
 }
@@ -60,9 +68,20 @@ pub fn build(spec: &StageSpec, sample_rate: u32, seed: u64, stream: u64) -> Resu
         StageSpec::Compand(p) => Box::new(compand::Compander::new(p)?),
         StageSpec::Minifloat(p) => Box::new(minifloat::Minifloat::new(p)?),
         StageSpec::Adpcm(p) => Box::new(adpcm::AdpcmRoundTrip::new(p)?),
+        StageSpec::Codec(p) => Box::new(codec::CodecRoundTrip::new(p)?),
+        StageSpec::Delta(p) => Box::new(delta::DeltaModulator::new(p)?),
         StageSpec::Filter(p) => Box::new(filter::Filter::new(p, sample_rate)?),
         StageSpec::Rate(_) => return Ok(None),
     }))
+}
+
+/// Checks what a stage needs of the signal it gets: a codec defined at one rate (G.721: 8000 Hz) refuses any other,
+/// with an error that names the rate stage to add. `rate` is the sample rate at the stage's place in the chain.
+pub fn check_rate(spec: &StageSpec, rate: u32) -> Result<()> {
+    match spec {
+        StageSpec::Codec(p) => p.codec.check_rate(rate),
+        _ => Ok(()),
+    }
 }
 
 /// Validates one stage's parameters (those that need no source rate; the rate stage is checked against the source

@@ -4,7 +4,7 @@
 //! the constants the stages validate with, and the defaults are the stages' own `Default` parameters, serialised.
 
 use crate::error::Range;
-use crate::stages::{adpcm, compand, dither, filter, gain, minifloat, quantize, rate, StageSpec};
+use crate::stages::{adpcm, compand, delta, dither, filter, gain, minifloat, quantize, rate, StageSpec};
 use serde::Serialize;
 use serde_json::Value;
 
@@ -179,6 +179,29 @@ pub fn schema() -> Vec<Kind> {
                 .slider(9.0, 4089.0)],
         ),
         with_defaults(
+            "codec",
+            "Codec round trip (4-bit ADPCM)",
+            StageSpec::Codec(Default::default()),
+            vec![
+                choice("codec", "Codec", &["ima-adpcm", "ms-adpcm", "g721", "vox-adpcm"]),
+                // One range for both block codecs: IMA ADPCM's (8k + 1); Microsoft ADPCM takes even counts 4 to 32768.
+                num("samples_per_block", "Block", "int", "samples", adpcm::SAMPLES_PER_BLOCK)
+                    .step(8.0)
+                    .slider(9.0, 4089.0)
+                    .optional("the export's")
+                    .when("codec", &["ima-adpcm", "ms-adpcm"]),
+            ],
+        ),
+        with_defaults(
+            "delta",
+            "1-bit delta modulation",
+            StageSpec::Delta(Default::default()),
+            vec![
+                num("step", "Step", "float", "FS", delta::STEP).step(0.001).slider(0.001, 0.1),
+                num("leak", "Leak", "float", "", delta::LEAK).step(0.001).slider(0.9, 1.0),
+            ],
+        ),
+        with_defaults(
             "minifloat",
             "Minifloat",
             StageSpec::Minifloat(Default::default()),
@@ -245,7 +268,10 @@ mod tests {
             }
         }
         let names: Vec<&str> = kinds.iter().map(|k| k.kind).collect();
-        assert_eq!(names, ["gain", "rate", "quantize", "g711", "compand", "adpcm", "minifloat", "filter"]);
+        assert_eq!(
+            names,
+            ["gain", "rate", "quantize", "g711", "compand", "adpcm", "codec", "delta", "minifloat", "filter"]
+        );
     }
 
     /// The ranges are the ones validation enforces: the ends pass, one step beyond fails, naming the field.
@@ -261,7 +287,8 @@ mod tests {
                 if let Some(w) = &f.when {
                     base[w.field] = Value::from(w.is[0]);
                 }
-                let (lo, hi) = if k.kind == "adpcm" { (r.min + 8.0, r.max) } else { (r.min, r.max) };
+                let (lo, hi) =
+                    if k.kind == "adpcm" || k.kind == "codec" { (r.min + 8.0, r.max) } else { (r.min, r.max) };
                 let at = |v: f64| {
                     let mut s = base.clone();
                     s[f.key] = if f.kind == "int" { Value::from(v as i64) } else { Value::from(v) };

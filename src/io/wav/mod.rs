@@ -6,7 +6,8 @@
 //! # Reading ([`read`], [`read_with_meta`])
 //! Format tags: PCM (1) with 8-bit unsigned, 16-, 24- and 32-bit signed samples (other widths up to 32 bits in the
 //! next whole-byte container, left-justified, as the format requires); IEEE float (3), 32 and 64 bits; A-law (6);
-//! μ-law (7); IMA ADPCM (0x11); `WAVE_FORMAT_EXTENSIBLE` (0xFFFE) whose subformat GUID is PCM, float, A-law or μ-law.
+//! μ-law (7); IMA ADPCM (0x11); Microsoft ADPCM (0x0002, 1 or 2 channels); G.721 ADPCM (0x0040, one channel, decoded
+//! in libsndfile's arithmetic: see [`crate::codec::g721`]); `WAVE_FORMAT_EXTENSIBLE` (0xFFFE) whose subformat GUID is PCM, float, A-law or μ-law.
 //! 1 to 64 channels, 1 to 768,000 Hz. Integer samples are scaled by 2^−(bits−1) (full scale −1.0 … 1 − 2^−(bits−1)).
 //!
 //! Chunks: `fmt ` and `data` are required; `fact` gives the true length of IMA ADPCM; `smpl` loops and `cue ` points
@@ -30,6 +31,10 @@
 //! - float32, μ-law, A-law: `fmt ` of 18 bytes (cbSize 0), `fact` (frames), `data`.
 //! - IMA ADPCM: `fmt ` of 20 bytes (cbSize 2, samplesPerBlock), `fact` (true frame count), `data` of whole blocks
 //!   (see [`crate::codec::ima_adpcm`] for the layout, default block size and padding of the last block).
+//! - Microsoft ADPCM: `fmt ` of 50 bytes (cbSize 32: samplesPerBlock, 7 and the seven standard coefficient pairs, as
+//!   the format requires), `fact`, `data` of whole blocks ([`crate::codec::ms_adpcm`]).
+//! - G.721: `fmt ` of 20 bytes (cbSize 2, auxiliary block size 0), `fact`, `data` of whole 60-byte blocks of 120
+//!   samples, the last completed with coded silence ([`crate::codec::g721`]). One channel at 8000 Hz only.
 //! - With loops, a `smpl` chunk follows `data` (so readers that assume a 44-byte PCM header still work).
 //!
 //! Plain PCM tags are used even for 24/32 bits and more than two channels (no `WAVE_FORMAT_EXTENSIBLE`): every
@@ -47,6 +52,8 @@ pub(crate) const WAVE_FORMAT_IEEE_FLOAT: u16 = 3;
 pub(crate) const WAVE_FORMAT_ALAW: u16 = 6;
 pub(crate) const WAVE_FORMAT_MULAW: u16 = 7;
 pub(crate) const WAVE_FORMAT_IMA_ADPCM: u16 = 0x11;
+pub(crate) const WAVE_FORMAT_MS_ADPCM: u16 = 0x0002;
+pub(crate) const WAVE_FORMAT_G721_ADPCM: u16 = 0x0040;
 pub(crate) const WAVE_FORMAT_EXTENSIBLE: u16 = 0xFFFE;
 
 /// Bytes 2..16 of every `KSDATAFORMAT_SUBTYPE_*` GUID derived from a format tag

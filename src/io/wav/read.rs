@@ -4,6 +4,7 @@ use super::*;
 use crate::audio::{Clip, MAX_CHANNELS, MAX_SAMPLE_RATE};
 use crate::codec::g711::{alaw_to_linear, ulaw_to_linear};
 use crate::codec::ima_adpcm as adpcm;
+use crate::codec::{g721, ms_adpcm};
 use crate::error::{Error, Result};
 use crate::io::{ExportMeta, SampleLoop, WavEncoding};
 
@@ -45,6 +46,8 @@ impl WavFormat {
             (WAVE_FORMAT_MULAW, _) => Some(WavEncoding::Mulaw),
             (WAVE_FORMAT_ALAW, _) => Some(WavEncoding::Alaw),
             (WAVE_FORMAT_IMA_ADPCM, _) => Some(WavEncoding::ImaAdpcm),
+            (WAVE_FORMAT_MS_ADPCM, _) => Some(WavEncoding::MsAdpcm),
+            (WAVE_FORMAT_G721_ADPCM, _) => Some(WavEncoding::G721),
             _ => None,
         }
     }
@@ -60,6 +63,8 @@ impl WavFormat {
             WAVE_FORMAT_MULAW => "G.711 mu-law".into(),
             WAVE_FORMAT_ALAW => "G.711 A-law".into(),
             WAVE_FORMAT_IMA_ADPCM => "IMA ADPCM".into(),
+            WAVE_FORMAT_MS_ADPCM => "Microsoft ADPCM".into(),
+            WAVE_FORMAT_G721_ADPCM => "G.721 ADPCM".into(),
             t => format!("format {t:#06x}"),
         };
         if self.format_tag == WAVE_FORMAT_EXTENSIBLE {
@@ -138,6 +143,15 @@ pub fn read_with_meta(bytes: &[u8]) -> Result<(Clip, WavMeta)> {
     let channels = f.channels as usize;
     let out = if f.sub_format == WAVE_FORMAT_IMA_ADPCM {
         decode_adpcm(data, f, meta.fact_frames, &mut meta.warnings)?
+    } else if f.sub_format == WAVE_FORMAT_MS_ADPCM {
+        decode_ms_adpcm(data, f, meta.fact_frames, &mut meta.warnings)?
+    } else if f.sub_format == WAVE_FORMAT_G721_ADPCM {
+        let max = meta.fact_frames.map_or(u64::MAX, |n| n as u64);
+        let pcm = g721::decode_stream(data, g721::Arith::Libsndfile, max);
+        if (pcm.len() as u64) < max && max != u64::MAX {
+            meta.warnings.push(format!("`fact` chunk says {max} frames but the data holds {}", pcm.len()));
+        }
+        vec![pcm.into_iter().map(|s| s as f32 / 32768.0).collect()]
     } else {
         decode_frames(data, f, &mut meta.warnings)
     };
@@ -504,6 +518,53 @@ pub(super) fn parse_fmt(b: &[u8], warnings: &mut Vec<String>) -> Result<WavForma
             f.samples_per_block = Some(spb as u16);
             return Ok(f);
         }
+        WAVE_FORMAT_MS_ADPCM => {
+            if bits != 4 {
+                return err(format!("Microsoft ADPCM with {bits} bits per sample is not supported (only 4)"));
+            }
+            let spb = ms_adpcm::samples_per_block(ba, ch).map_err(|e| {
+                Error::format(format!("Microsoft ADPCM block align {ba} with {}: {e}", plural(ch, "channel")))
+            })?;
+            if b.len() >= 22 && cb_size.unwrap_or(0) >= 4 {
+                let declared = u16_at(b, 18) as usize;
+                if declared != spb {
+                    return err(format!(
+                        "Microsoft ADPCM `fmt ` chunk says {declared} samples per block, but a block align of {ba} \
+                         bytes for {} holds {spb}",
+                        plural(ch, "channel")
+                    ));
+                }
+                // The format stores its coefficient table; every decoder in use (Microsoft's, libsndfile) uses the
+                // seven standard pairs regardless, and so does this one.
+                let n = u16_at(b, 20) as usize;
+                let standard = n >= 7
+                    && b.len() >= 22 + 4 * 7
+                    && (0..7).all(|k| {
+                        u16_at(b, 22 + 4 * k) as i16 as i32 == ms_adpcm::COEF1[k]
+                            && u16_at(b, 24 + 4 * k) as i16 as i32 == ms_adpcm::COEF2[k]
+                    });
+                if !standard {
+                    warnings.push(
+                        "Microsoft ADPCM coefficient table is not the standard one: decoded with the standard pairs"
+                            .into(),
+                    );
+                }
+            } else {
+                warnings.push(format!("Microsoft ADPCM `fmt ` chunk lacks samplesPerBlock: taken as {spb}"));
+            }
+            f.samples_per_block = Some(spb as u16);
+            return Ok(f);
+        }
+        WAVE_FORMAT_G721_ADPCM => {
+            if bits != 4 {
+                return err(format!("G.721 with {bits} bits per sample is not supported (32 kbit/s: 4)"));
+            }
+            if ch != 1 {
+                return err(format!("G.721 with {} is not supported (one channel)", plural(ch, "channel")));
+            }
+            // A continuous stream: the block align only says how writers padded it.
+            return Ok(f);
+        }
         t => return err(format!("unsupported format tag {t:#06x}{}", tag_name(t))),
     };
     let expected = ch * container;
@@ -607,6 +668,35 @@ fn decode_adpcm(data: &[u8], f: &WavFormat, fact: Option<u32>, warnings: &mut Ve
         None if fact_distrusted => {}
         None => warnings
             .push(format!("IMA ADPCM file without a `fact` chunk: all {frames} decoded frames kept, padding included")),
+        Some(n) if (n as usize) > frames => {
+            warnings.push(format!("`fact` chunk says {n} frames but the data holds {frames}"))
+        }
+        _ => {}
+    }
+    Ok(pcm.into_iter().map(|c| c.into_iter().map(|s| s as f32 / 32768.0).collect()).collect())
+}
+
+/// Decodes Microsoft ADPCM blocks, trimmed to the `fact` length.
+fn decode_ms_adpcm(data: &[u8], f: &WavFormat, fact: Option<u32>, warnings: &mut Vec<String>) -> Result<Vec<Vec<f32>>> {
+    let ch = f.channels as usize;
+    let (pcm, notes) = ms_adpcm::decode_blocks(data, ch, f.block_align as usize, fact.map_or(u64::MAX, |n| n as u64))?;
+    let frames = pcm.first().map_or(0, |c| c.len());
+    if notes.bad_predictor > 0 {
+        warnings.push(format!(
+            "{} with a predictor index above 6 (taken as 0)",
+            plural(notes.bad_predictor, "Microsoft ADPCM block header")
+        ));
+    }
+    if notes.leftover_bytes > 0 {
+        warnings.push(format!(
+            "the Microsoft ADPCM data ends with {} that do not make a block header: ignored",
+            plural(notes.leftover_bytes, "byte")
+        ));
+    }
+    match fact {
+        None => warnings.push(format!(
+            "Microsoft ADPCM file without a `fact` chunk: all {frames} decoded frames kept, padding included"
+        )),
         Some(n) if (n as usize) > frames => {
             warnings.push(format!("`fact` chunk says {n} frames but the data holds {frames}"))
         }

@@ -8,7 +8,7 @@
 
 use super::read::{decode_frames, parse_fmt, truncation};
 use super::write::{body_append, header, trailer};
-use super::{WavFormat, WAVE_FORMAT_IMA_ADPCM};
+use super::{WavFormat, WAVE_FORMAT_G721_ADPCM, WAVE_FORMAT_IMA_ADPCM, WAVE_FORMAT_MS_ADPCM};
 use crate::error::{Error, Result};
 use crate::io::{ExportMeta, WavEncoding};
 use std::io::{Read, Seek, SeekFrom, Write};
@@ -54,7 +54,7 @@ impl<R: Read + Seek> StreamReader<R> {
                 }
                 b"data" => {
                     let Some(f) = format else { return Ok(None) };
-                    if f.sub_format == WAVE_FORMAT_IMA_ADPCM {
+                    if matches!(f.sub_format, WAVE_FORMAT_IMA_ADPCM | WAVE_FORMAT_MS_ADPCM | WAVE_FORMAT_G721_ADPCM) {
                         return Ok(None);
                     }
                     let avail = size.min(len - body);
@@ -123,9 +123,9 @@ pub struct StreamWriter<W: Write> {
 }
 
 impl<W: Write> StreamWriter<W> {
-    /// Whether this encoding can be streamed (every byte-aligned one; not IMA ADPCM).
+    /// Whether this encoding can be streamed (every byte-aligned one; not the ADPCM codecs).
     pub fn supports(encoding: WavEncoding) -> bool {
-        encoding != WavEncoding::ImaAdpcm
+        encoding.is_byte_aligned()
     }
 
     /// Writes the header of a file of `frames` frames.
@@ -141,7 +141,7 @@ impl<W: Write> StreamWriter<W> {
             return Err(Error::param(
                 "encoding",
                 encoding.name(),
-                "a byte-aligned encoding (not ima-adpcm) for streaming",
+                "a byte-aligned encoding (not an ADPCM codec) for streaming",
             ));
         }
         w.write_all(&header(encoding, None, frames, channels, rate, &meta)?)?;

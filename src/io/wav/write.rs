@@ -4,6 +4,7 @@ use super::*;
 use crate::audio::Clip;
 use crate::codec::g711::{linear_to_alaw, linear_to_ulaw};
 use crate::codec::ima_adpcm as adpcm;
+use crate::codec::{g721, ms_adpcm};
 use crate::error::{Error, Result};
 use crate::io::{check_clip, ExportMeta, WavEncoding};
 use crate::sample::pcm_code;
@@ -16,7 +17,7 @@ fn bytes_per_sample(enc: WavEncoding) -> usize {
         WavEncoding::PcmS16 => 2,
         WavEncoding::PcmS24 => 3,
         WavEncoding::PcmS32 | WavEncoding::Float32 => 4,
-        WavEncoding::ImaAdpcm => 0,
+        WavEncoding::ImaAdpcm | WavEncoding::MsAdpcm | WavEncoding::G721 => 0,
     }
 }
 
@@ -25,7 +26,9 @@ fn fmt_layout(enc: WavEncoding) -> (u32, bool) {
     match enc {
         WavEncoding::PcmU8 | WavEncoding::PcmS16 | WavEncoding::PcmS24 | WavEncoding::PcmS32 => (16, false),
         WavEncoding::Float32 | WavEncoding::Mulaw | WavEncoding::Alaw => (18, true),
-        WavEncoding::ImaAdpcm => (20, true),
+        WavEncoding::ImaAdpcm | WavEncoding::G721 => (20, true),
+        // cbSize 32: samplesPerBlock, the coefficient count and the seven standard pairs.
+        WavEncoding::MsAdpcm => (50, true),
     }
 }
 
@@ -43,13 +46,37 @@ fn adpcm_block_align(block_align: Option<usize>, channels: usize) -> Result<(usi
     Ok((ba, adpcm::samples_per_block(ba, channels)?))
 }
 
+/// The Microsoft ADPCM block align to use, checked against the channel count.
+fn ms_block_align(block_align: Option<usize>, channels: usize) -> Result<(usize, usize)> {
+    let ba = block_align.unwrap_or_else(|| ms_adpcm::default_block_align(channels));
+    Ok((ba, ms_adpcm::samples_per_block(ba, channels)?))
+}
+
+/// G.721 holds one channel (as libsndfile, the usual reader of format 0x0040, requires).
+fn g721_channels(channels: usize) -> Result<()> {
+    if channels != 1 {
+        return Err(Error::param(
+            "channels",
+            channels,
+            "1: a G.721 WAV holds one channel (set prep \"channels\": {\"mono\": \"sum-3db\"})",
+        ));
+    }
+    Ok(())
+}
+
 /// Size of the `data` chunk's body.
 fn data_size(enc: WavEncoding, block_align: Option<usize>, frames: usize, channels: usize) -> Result<u64> {
     if enc == WavEncoding::ImaAdpcm {
         let (ba, spb) = adpcm_block_align(block_align, channels)?;
         Ok(adpcm::block_count(frames as u64, spb) * ba as u64)
+    } else if enc == WavEncoding::MsAdpcm {
+        let (ba, spb) = ms_block_align(block_align, channels)?;
+        Ok(ms_adpcm::block_count(frames as u64, spb) * ba as u64)
     } else if block_align.is_some() {
-        Err(Error::param("block_align", block_align.unwrap_or(0), "only with encoding \"ima-adpcm\""))
+        Err(Error::param("block_align", block_align.unwrap_or(0), "only with encoding \"ima-adpcm\" or \"ms-adpcm\""))
+    } else if enc == WavEncoding::G721 {
+        g721_channels(channels)?;
+        Ok((frames as u64).div_ceil(g721::SAMPLES_PER_BLOCK as u64) * g721::BYTES_PER_BLOCK as u64)
     } else {
         Ok((frames as u64).saturating_mul(channels as u64).saturating_mul(bytes_per_sample(enc) as u64))
     }
@@ -118,6 +145,8 @@ pub(super) fn header(
         WavEncoding::Mulaw => WAVE_FORMAT_MULAW,
         WavEncoding::Alaw => WAVE_FORMAT_ALAW,
         WavEncoding::ImaAdpcm => WAVE_FORMAT_IMA_ADPCM,
+        WavEncoding::MsAdpcm => WAVE_FORMAT_MS_ADPCM,
+        WavEncoding::G721 => WAVE_FORMAT_G721_ADPCM,
         _ => WAVE_FORMAT_PCM,
     };
     u16le(&mut out, tag);
@@ -131,6 +160,26 @@ pub(super) fn header(
         u16le(&mut out, 4);
         u16le(&mut out, 2);
         u16le(&mut out, spb as u16);
+    } else if enc == WavEncoding::MsAdpcm {
+        let (ba, spb) = ms_block_align(block_align, ch)?;
+        u32le(&mut out, (rate as u64 * ba as u64 / spb as u64) as u32);
+        u16le(&mut out, ba as u16);
+        u16le(&mut out, 4);
+        u16le(&mut out, 32);
+        u16le(&mut out, spb as u16);
+        u16le(&mut out, 7);
+        for k in 0..7 {
+            u16le(&mut out, ms_adpcm::COEF1[k] as i16 as u16);
+            u16le(&mut out, ms_adpcm::COEF2[k] as i16 as u16);
+        }
+    } else if enc == WavEncoding::G721 {
+        // 4 bits per sample; the block is the 60-byte (120-sample) unit the data is padded to; cbSize 2 and an
+        // auxiliary block size of 0, as libsndfile writes.
+        u32le(&mut out, rate / 2);
+        u16le(&mut out, g721::BYTES_PER_BLOCK as u16);
+        u16le(&mut out, 4);
+        u16le(&mut out, 2);
+        u16le(&mut out, 0);
     } else {
         let bps = bytes_per_sample(enc);
         u32le(&mut out, rate * (ch * bps) as u32);
@@ -164,7 +213,7 @@ pub(super) fn body_append<C: AsRef<[f32]>>(enc: WavEncoding, block: &[C], out: &
                 WavEncoding::Float32 => out.extend_from_slice(&x.to_le_bytes()),
                 WavEncoding::Mulaw => out.push(linear_to_ulaw(pcm_code(x, 16) as i16)),
                 WavEncoding::Alaw => out.push(linear_to_alaw(pcm_code(x, 16) as i16)),
-                WavEncoding::ImaAdpcm => {}
+                WavEncoding::ImaAdpcm | WavEncoding::MsAdpcm | WavEncoding::G721 => {}
             }
         }
     }
@@ -213,10 +262,19 @@ pub fn write_with(clip: &Clip, enc: WavEncoding, block_align: Option<usize>, met
     let mut out = header(enc, block_align, frames, ch, clip.sample_rate, meta)?;
     let data_len = data_size(enc, block_align, frames, ch)?;
     out.reserve(data_len as usize + 128);
-    if enc == WavEncoding::ImaAdpcm {
+    if !enc.is_byte_aligned() {
+        if enc == WavEncoding::G721 {
+            crate::stages::codec::CodecName::G721.check_rate(clip.sample_rate)?;
+        }
         let codes: Vec<Vec<i16>> =
             clip.channels.iter().map(|c| c.iter().map(|&x| pcm_code(sanitize(x), 16) as i16).collect()).collect();
-        adpcm::encode_blocks(&codes, block_align.unwrap_or_else(|| adpcm::default_block_align(ch)), &mut out)?;
+        match enc {
+            WavEncoding::MsAdpcm => {
+                ms_adpcm::encode_blocks(&codes, ms_block_align(block_align, ch)?.0, &mut out)?;
+            }
+            WavEncoding::G721 => g721::encode_stream(&codes[0], &mut out),
+            _ => adpcm::encode_blocks(&codes, block_align.unwrap_or_else(|| adpcm::default_block_align(ch)), &mut out)?,
+        }
     } else {
         body_append(enc, &clip.channels, &mut out);
     }
