@@ -2,7 +2,7 @@
 //! 11,025 Hz → 8-bit TPDF dither) at 48 kHz, as a fraction of the block's real-time budget (128 / 48,000 s =
 //! 2.667 ms). `node scripts/bench-live.mjs` prints this beside the same figure for the wasm `LiveChain` in Chromium.
 //!
-//! It runs the core's `stairstep::live::LiveChain` (src/live.rs), the same code the wasm `LiveChain` wraps: the
+//! It runs the core's `stairstep::live::LiveChain` (src/live/), the same code the wasm `LiveChain` wraps: the
 //! pre-gain, mix and output-gain ramps, `Chain::process_block` on an unbounded chain, the audition and dry FIFOs and
 //! the mix. A counting allocator checks that the timed blocks allocate nothing.
 //!
