@@ -2,16 +2,15 @@
 //! 11,025 Hz → 8-bit TPDF dither) at 48 kHz, as a fraction of the block's real-time budget (128 / 48,000 s =
 //! 2.667 ms). `node scripts/bench-live.mjs` prints this beside the same figure for the wasm `LiveChain` in Chromium.
 //!
-//! `LiveChain` (src/wasm.rs) is compiled for wasm32 only, so this mirrors its per-block work with the public API:
-//! the pre-gain (per-sample curve), `Chain::process_block` on an unbounded chain with a reused `ChainOutput`, the
-//! audition and dry FIFOs (copies) and the mix. A counting allocator checks that the timed blocks allocate nothing.
+//! It runs the core's `stairstep::live::LiveChain` (src/live/), the same code the wasm `LiveChain` wraps: the
+//! pre-gain, mix and output-gain ramps, `Chain::process_block` on an unbounded chain, the audition and dry FIFOs and
+//! the mix. A counting allocator checks that the timed blocks allocate nothing.
 //!
 //! ```sh
 //! cargo run --release --example block_cost [-- --channels 2 --seconds 60 --json]
 //! ```
 
-use stairstep::chain::{Chain, ChainOutput, UNBOUNDED};
-use stairstep::stages::BLOCK;
+use stairstep::live::LiveChain;
 use stairstep::Preset;
 use std::alloc::{GlobalAlloc, Layout, System};
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
@@ -51,36 +50,6 @@ unsafe impl GlobalAlloc for Counting {
 #[global_allocator]
 static GLOBAL: Counting = Counting;
 
-/// A fixed-capacity FIFO like LiveChain's (copies in, copies out).
-struct Ring {
-    buf: Vec<f32>,
-    head: usize,
-    len: usize,
-}
-
-impl Ring {
-    fn push(&mut self, x: &[f32]) {
-        let cap = self.buf.len();
-        let n = x.len().min(cap - self.len);
-        let tail = (self.head + self.len) % cap;
-        let first = n.min(cap - tail);
-        self.buf[tail..tail + first].copy_from_slice(&x[..first]);
-        self.buf[..n - first].copy_from_slice(&x[first..n]);
-        self.len += n;
-    }
-
-    fn pop(&mut self, out: &mut [f32]) {
-        let cap = self.buf.len();
-        let n = out.len().min(self.len);
-        let first = n.min(cap - self.head);
-        out[..first].copy_from_slice(&self.buf[self.head..self.head + first]);
-        out[first..n].copy_from_slice(&self.buf[..n - first]);
-        out[n..].fill(0.0);
-        self.head = (self.head + n) % cap;
-        self.len -= n;
-    }
-}
-
 fn arg(name: &str) -> Option<String> {
     let args: Vec<String> = std::env::args().collect();
     args.iter().position(|a| a == name).and_then(|i| args.get(i + 1).cloned())
@@ -91,15 +60,8 @@ fn main() {
     let seconds: f64 = arg("--seconds").and_then(|v| v.parse().ok()).unwrap_or(60.0);
     let json = std::env::args().any(|a| a == "--json");
     let preset = Preset::from_json(PRESET).expect("the typical preset is valid");
-    let mut chain = Chain::new(&preset, channels, RATE, UNBOUNDED).expect("the typical chain builds");
-    let mut out = ChainOutput::new(channels);
-    out.export.iter_mut().chain(out.audition.iter_mut()).for_each(|v| v.reserve_exact(2 * BLOCK));
-    let ring = || Ring { buf: vec![0.0; 3 * BLOCK], head: 0, len: 0 };
-    let (mut wet, mut dry): (Vec<Ring>, Vec<Ring>) =
-        ((0..channels).map(|_| ring()).collect(), (0..channels).map(|_| ring()).collect());
-    let mut gained: Vec<Vec<f32>> = (0..channels).map(|_| Vec::with_capacity(BLOCK)).collect();
-    let (mut wet_buf, mut dry_buf, mut output) = (vec![0.0f32; BLOCK], vec![0.0f32; BLOCK], vec![0.0f32; BLOCK]);
-    let (gain, mix, out_gain) = (vec![1.0f32; FRAMES], vec![1.0f32; FRAMES], vec![1.0f32; FRAMES]);
+    let mut live = LiveChain::new(&preset, channels, RATE).expect("the typical chain builds");
+    let (mut block_in, mut output) = (vec![vec![0.0f32; FRAMES]; channels], vec![vec![0.0f32; FRAMES]; channels]);
     // A busy input: two detuned tones per channel, −3 dBFS.
     let period = RATE as usize;
     let input: Vec<Vec<f32>> = (0..channels)
@@ -118,22 +80,12 @@ fn main() {
     let mut pos = 0;
     let mut checksum = 0.0f64;
     let mut block = |checksum: &mut f64| {
-        for (g, x) in gained.iter_mut().zip(&input) {
-            g.clear();
-            g.extend(x[pos..pos + FRAMES].iter().zip(&gain).map(|(&s, &k)| stairstep::sample::sanitize(s) * k));
+        // As the worklet does: copy each channel's block into the chain's input buffer.
+        for (b, x) in block_in.iter_mut().zip(&input) {
+            b.copy_from_slice(&x[pos..pos + FRAMES]);
         }
-        out.clear();
-        chain.process_block(&gained, &mut out);
-        for ch in 0..channels {
-            wet[ch].push(&out.audition[ch]);
-            dry[ch].push(&input[ch][pos..pos + FRAMES]);
-            wet[ch].pop(&mut wet_buf[..FRAMES]);
-            dry[ch].pop(&mut dry_buf[..FRAMES]);
-            for i in 0..FRAMES {
-                output[i] = (dry_buf[i] * (1.0 - mix[i]) + wet_buf[i] * mix[i]) * out_gain[i];
-            }
-            *checksum += output[FRAMES - 1] as f64;
-        }
+        live.process(&block_in, &mut output, FRAMES).expect("buffers of the chain's shape");
+        *checksum += output.iter().map(|o| o[FRAMES - 1] as f64).sum::<f64>();
         pos = (pos + FRAMES) % (period - FRAMES);
     };
 

@@ -4,7 +4,7 @@
 //
 //   node scripts/bench-live.mjs [--channels 2] [--seconds 60]   (seconds of audio per timing run)
 //
-// Native: examples/block_cost.rs (release build), which mirrors LiveChain's per-block work with the public API.
+// Native: examples/block_cost.rs (release build), which runs the core's LiveChain (src/live/), the code the wasm LiveChain wraps.
 // Wasm: the LiveChain of the committed dist/stairstep-worklet.js (build it first: bash scripts/build-wasm.sh, then
 // node scripts/build-page.mjs), driven from a page in headless Chromium exactly as the worklet drives it (input
 // copied into wasm memory, process(128), output copied out), timed with performance.now() over many blocks.

@@ -31,6 +31,7 @@ pub mod db;
 pub mod demo;
 pub mod error;
 pub mod io;
+pub mod live;
 pub mod prep;
 pub mod preset;
 pub mod render;

@@ -3,7 +3,7 @@
 // The build (scripts/build-page.mjs) replaces the GLUE slot line below with wasm-bindgen's no-modules glue (which
 // defines `wasm_bindgen`) and, in the standalone dist/stairstep-worklet.js, with the wasm itself as base64
 // (`STAIRSTEP_WASM_BASE64`). The processor instantiates the module synchronously in the worklet's own global scope:
-// no threads, no SharedArrayBuffer, no fetch. Each processor owns one `LiveChain` (src/wasm.rs).
+// no threads, no SharedArrayBuffer, no fetch. Each processor owns one `LiveChain` (src/wasm/live.rs over src/live/).
 //
 // Node options (new AudioWorkletNode(ctx, 'stairstep-crusher', options)):
 //   numberOfInputs 1, numberOfOutputs 1; give channelCount = outputChannelCount[0] = the chain's channel count and
@@ -429,7 +429,7 @@ class StairstepCrusher extends AudioWorkletProcessor {
   // see clock(); null offline), worstLateMs (the largest such delay), lagSpreadMs (the range of wall-clock minus
   // audio time: the rendering's burst jitter), busyMs and load (time inside process() over audio time, from
   // Date.now()'s 1 ms ticks: unbiased over many blocks), and `core`, the chain's own counters (underrunFrames,
-  // rebuilds, latencyFrames, …: LiveChain.stats() in src/wasm.rs). The browser's own count of output underruns,
+  // rebuilds, latencyFrames, …: LiveChain.stats(): LiveStats in src/live/). The browser's own count of output underruns,
   // where it has one (AudioContext.playbackStats), is added on the main thread by Stairstep.getStats().
   statsNow() {
     const audioMs = this.frame0 >= 0 ? ((this.lastFrame - this.frame0) * 1000) / sampleRate : 0;
