@@ -1,5 +1,5 @@
 // Stairstep crusher: an AudioWorklet module with the DSP core (WebAssembly) inside; needs no other file.
-// stairstep-source-hash: d4d049acb3af23d1a9a255f5f350e5a35796f2b8fe3a1ee2a2977a85fbbd4d82
+// stairstep-source-hash: 03a18ec356b4c0446b7bad7dd5e744084ce2065944a9d053e205ba54df8de373
 //   await ctx.audioWorklet.addModule('stairstep-worklet.js');
 //   const node = new AudioWorkletNode(ctx, 'stairstep-crusher', { outputChannelCount: [2],
 //     processorOptions: { preset: 'handheld' } });
