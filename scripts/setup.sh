@@ -150,6 +150,21 @@ if [ "$("$CARGO_BIN/wasm-bindgen" --version 2>/dev/null | cut -d' ' -f2)" != "$W
 fi
 
 # ---------------------------------------------------------------------------------------------------------------------
+# 2b. wasm-pack, pinned: it drives the wasm build (scripts/build-wasm.sh) and the wasm tests (scripts/test.sh) in
+#     `--mode no-install`, with the wasm-bindgen above first on PATH and wasm-opt run by the project (DEVELOPERS.md).
+#     Built with rustup's default toolchain whichever wasm32 toolchain was chosen above.
+# ---------------------------------------------------------------------------------------------------------------------
+WASM_PACK_VERSION=0.15.1
+if [ "$("$CARGO_BIN/wasm-pack" --version 2>/dev/null | cut -d' ' -f2)" != "$WASM_PACK_VERSION" ]; then
+  installing "wasm-pack $WASM_PACK_VERSION (a few minutes)"
+  # --locked: the dependency versions wasm-pack was released and tested with. Should the registry ever lack one of
+  # them (as happened to wasm-bindgen-cli's lock), build with a fresh resolution instead.
+  cargo install -q wasm-pack --version "=$WASM_PACK_VERSION" --locked --force ||
+    { say "wasm-pack's published lock file does not resolve; installing without --locked";
+      cargo install -q wasm-pack --version "=$WASM_PACK_VERSION" --force; }
+fi
+
+# ---------------------------------------------------------------------------------------------------------------------
 # 3. Chromium and its driver (Debian's), for the browser tests.
 # ---------------------------------------------------------------------------------------------------------------------
 if ! command -v chromium >/dev/null 2>&1 || ! command -v chromedriver >/dev/null 2>&1; then
@@ -184,12 +199,13 @@ cat > build/toolchain.env <<EOF
 WASM_TOOLCHAIN=$WASM_TOOLCHAIN
 WASM_BINDGEN=$CARGO_BIN/wasm-bindgen
 WASM_BINDGEN_TEST_RUNNER=$CARGO_BIN/wasm-bindgen-test-runner
+WASM_PACK=$CARGO_BIN/wasm-pack
 WASM_OPT=$ROOT/node_modules/.bin/wasm-opt
 PYTHON=$ROOT/.venv/bin/python
 EOF
 
 if [ ${#did[@]} -eq 0 ]; then
-  say "everything present (wasm32 via toolchain '$WASM_TOOLCHAIN', wasm-bindgen $WBG_VERSION)"
+  say "everything present (wasm32 via toolchain '$WASM_TOOLCHAIN', wasm-bindgen $WBG_VERSION, wasm-pack $WASM_PACK_VERSION)"
 else
   say "done: ${did[*]}"
 fi

@@ -1,5 +1,6 @@
 //! Export formats: exact sizes for every format, lossless PCM round trips, and C arrays compiled with the system C
 //! compiler and printed back.
+#![cfg(not(target_arch = "wasm32"))]
 
 mod common;
 
