@@ -4,6 +4,7 @@
 
 const { initSync, Session } = wasm_bindgen;
 let session = null;
+let wasm = null; // the module's exports (for its memory's size)
 
 function reply(type, payload, transfer = []) {
   self.postMessage({ type, ...payload }, transfer);
@@ -23,6 +24,8 @@ const MAX_WAVE_LANES = 8;
 let renderedChannels = 1;
 // The preparation (as JSON) of the chain input the page last received, so that it is sent once, not on every render.
 let referenceFor = null;
+// The chain input's loudness (LUFS), kept for the preparation (as JSON) it was measured with; dropped on a load.
+let inputLoudness = null;
 function envelopes(v) {
   const n = Math.max(1, Math.min(renderedChannels, MAX_WAVE_LANES));
   const env = { input: [], output: [] };
@@ -35,7 +38,7 @@ function envelopes(v) {
 
 const handlers = {
   init(msg) {
-    initSync({ module: msg.wasm });
+    wasm = initSync({ module: msg.wasm });
     session = new Session();
     reply('ready', { id: msg.id, demos: JSON.parse(Session.demoNames()), presets: JSON.parse(Session.builtinPresets()) });
   },
@@ -47,6 +50,7 @@ const handlers = {
     else info = session.loadSamples(msg.sampleRate, msg.channels, msg.interleaved);
     const d = describe(info);
     referenceFor = null;
+    inputLoudness = null;
     reply('loaded', { id: msg.id, ...d, name: msg.name }, d.input.map((a) => a.buffer));
   },
 
@@ -73,10 +77,23 @@ const handlers = {
     const headroom = JSON.parse(session.headroom(q ? (q.bits ?? 8) : 16, 0));
     let file = null;
     if (msg.withFile) file = session.exportFile();
+    // Integrated loudness (BS.1770, by the core) of the render and of the chain's input, for loudness-matched
+    // listening; only when asked (a long sound takes a while). null when it cannot be measured.
+    let loudness = null;
+    if (msg.loudness) {
+      const key = JSON.stringify(preset.prep ?? null);
+      if (inputLoudness?.key !== key) inputLoudness = { key, value: session.loudness('input') ?? null };
+      loudness = { input: inputLoudness.value, output: session.loudness('output') ?? null };
+    }
     const ms = performance.now() - t0;
     const transfer = [...Object.values(spectra), ...env.input, ...env.output, ...output, ...reference].map((a) => a.buffer);
     if (file) transfer.push(file.buffer);
-    reply('rendered', { id: msg.id, report, headroom, spectra, env, output, reference, referenceSame, file, ms }, transfer);
+    reply('rendered', { id: msg.id, report, headroom, spectra, env, output, reference, referenceSame, file, loudness, ms }, transfer);
+  },
+
+  // The size of the module's memory (it only grows: the high-water mark of everything so far), in bytes.
+  memory(msg) {
+    reply('memory', { id: msg.id, wasmBytes: wasm.memory.buffer.byteLength });
   },
 
   normalize(msg) {

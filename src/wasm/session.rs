@@ -248,6 +248,20 @@ impl Session {
         Ok(s)
     }
 
+    /// Integrated loudness in LUFS (ITU-R BS.1770, [`crate::analysis::loudness::integrated_loudness`]) of `source`
+    /// (as loaded), `input` (the chain's input) or `output` (the latest render at the source rate: what the monitor
+    /// plays). `undefined` when it cannot be measured (silence, under 400 ms, a rate below 3,364 Hz).
+    pub fn loudness(&self, which: &str) -> Result<Option<f64>, JsError> {
+        let clip = match (which, &self.render) {
+            ("source", _) | ("input", None) => &self.source,
+            ("input", Some(r)) => r.input(&self.source),
+            ("output", Some(r)) => &r.audition,
+            ("output", None) => return Err(JsError::new("nothing rendered yet")),
+            _ => return Err(JsError::new(&format!("unknown signal {which:?}: source, input or output"))),
+        };
+        Ok(crate::analysis::loudness::integrated_loudness(clip))
+    }
+
     /// The usual file extension of the preset's export format (no dot).
     #[wasm_bindgen(js_name = exportExtension)]
     pub fn export_extension(&self) -> String {

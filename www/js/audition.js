@@ -16,7 +16,7 @@ export const audio = {
     if (this.ctx) return;
     const ctx = new AudioContext();
     this.ctx = ctx;
-    this.monitor = new GainNode(ctx, { gain: dbToGain(+$('monitor').value) });
+    this.monitor = new GainNode(ctx, { gain: dbToGain(this.monitorDb()) });
     // Safety limiter: a fast, hard-kneed compressor, then a static clipper at −3 dBFS for anything it lets through.
     this.limiter = new DynamicsCompressorNode(ctx, { threshold: -12, knee: 0, ratio: 20, attack: 0.001, release: 0.1 });
     const curve = new Float32Array(1025);
@@ -28,6 +28,29 @@ export const audio = {
   },
 
   newSource() { this.stop(); this.buffers = {}; },
+
+  // Loudness matching: the processed render is played at the loudness of the chain's input (ITU-R BS.1770, measured
+  // by the core), so that snapshots compare at equal loudness. Boosts are capped at +12 dB (a near-silent render is
+  // not brought up to full loudness; the safety limiter stays on the path). 0 when off, when listening to the
+  // original or the error, or when a loudness cannot be measured (silence, under 400 ms).
+  matchDb() {
+    const l = state.loudness;
+    if (!state.matchLoudness || this.listen() !== 'output' || !l || l.input === null || l.output === null) return 0;
+    return Math.max(-40, Math.min(12, l.input - l.output));
+  },
+  monitorDb() { return +$('monitor').value + this.matchDb(); },
+  appliedDb: null, // the monitor gain last applied, dB
+
+  // Sets the monitor gain: the Monitor control plus the loudness match.
+  applyMonitor() {
+    const db = this.monitorDb();
+    this.appliedDb = db;
+    const m = this.matchDb();
+    $('match-out').textContent = !state.matchLoudness ? ''
+      : state.loudness && state.loudness.output === null ? '(cannot measure)'
+        : `${m <= -0.05 ? '−' : m >= 0.05 ? '+' : '±'}${Math.abs(m).toFixed(1)} dB`;
+    if (this.monitor) this.monitor.gain.setTargetAtTime(dbToGain(db), this.ctx.currentTime, 0.02);
+  },
 
   buffer(which) {
     if (this.buffers[which]) return this.buffers[which];

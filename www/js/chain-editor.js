@@ -1,7 +1,7 @@
 // The chain editor: one card per stage (its fields, bypass, move, remove), the "Add stage" tools, and the place where
 // a refused value is shown.
 import { $, el, setStatus } from './util.js';
-import { STAGES } from './schema.js';
+import { STAGES, MIX_FIELD, mixApplies } from './schema.js';
 import { state } from './state.js';
 import { requestRender } from './session.js';
 import { fieldControl } from './fields.js';
@@ -33,16 +33,25 @@ export function renderChain(focus = null) {
         disabled: i === 0, onclick: () => moveStage(i, -1) }, '↑'),
       el('button', { type: 'button', id: `down-${i}`, title: 'Move down', 'aria-label': `Move stage ${i + 1} down`,
         disabled: i === n - 1, onclick: () => moveStage(i, 1) }, '↓'),
-      el('button', { type: 'button', title: 'Remove', 'aria-label': `Remove stage ${i + 1}`,
+      el('button', { type: 'button', id: `rm-${i}`, title: 'Remove', 'aria-label': `Remove stage ${i + 1}`,
         onclick: () => removeStage(i) }, '✕'));
+    // Every stage but the rate stage has a Mix (its output blended with its own input).
+    const fields = schema ? schema.fields.filter((f) => !f.when || f.when(stage)) : [];
+    if (mixApplies(stage)) fields.push(MIX_FIELD);
     const body = el('div', { class: 'stage-body' },
-      ...(schema ? schema.fields.filter((f) => !f.when || f.when(stage))
-        .map((f) => fieldControl(stage, f, changed, `f-${i}-${f.key}`)) : []));
+      ...fields.map((f) => fieldControl(stage, f, changed, `f-${i}-${f.key}`)));
     box.append(el('div', { class: `stage${stage.bypass ? ' bypassed' : ''}`, 'data-kind': stage.kind, id: `stage-${i}`,
       role: 'group', 'aria-label': `Stage ${i + 1}, ${label}`, tabindex: -1 }, head, body,
     el('p', { class: 'stage-error', id: `stage-${i}-error` })));
   });
   if (focus) focusAfterRedraw(focus);
+  renderChainMix();
+}
+
+// The chain's Mix (the preset's `mix`): the whole chain's output blended with its input.
+export function renderChainMix() {
+  $('chain-mix').replaceChildren(fieldControl(state.preset, { ...MIX_FIELD, label: 'Chain mix' }, () => requestRender(),
+    'chain-mix-value'));
 }
 
 function focusAfterRedraw({ index, control }) {

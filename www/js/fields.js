@@ -24,15 +24,23 @@ export function fieldControl(stage, f, onChange, id) {
     return el('label', { class: 'field check', for: id }, box, el('span', {}, f.label));
   }
   const step = f.step ?? (f.type === 'int' ? 1 : 0.1);
-  const num = el('input', { id, type: 'number', min: f.min, max: f.max, step, value: value ?? '',
-    placeholder: f.placeholder ?? '', 'aria-label': `${f.label} in ${f.unit}` });
+  // `scale`: the control shows the stored value times this (a mix of 0.5 shows as 50 %).
+  const scale = f.scale ?? 1;
+  const shown = value === null || value === undefined ? '' : scale === 1 ? value : Math.round(value * scale * 1e6) / 1e6;
+  const num = el('input', { id, type: 'number', min: f.min, max: f.max, step, value: shown,
+    placeholder: f.placeholder ?? '', 'aria-label': f.unit ? `${f.label} in ${f.unit}` : f.label });
   const [rmin, rmax] = f.range ?? [f.min, f.max];
-  const range = el('input', { type: 'range', min: rmin, max: rmax, step, value: value ?? rmin, tabindex: -1,
-    'aria-hidden': 'true' });
+  const range = el('input', { type: 'range', min: rmin, max: rmax, step, value: shown === '' ? rmin : shown,
+    tabindex: -1, 'aria-hidden': 'true' });
   const commit = (text) => {
     if (text === '' && f.def === null) { delete stage[f.key]; onChange(); return; }
     const v = f.type === 'int' ? parseInt(text, 10) : parseFloat(text);
-    if (Number.isFinite(v)) { stage[f.key] = v; range.value = v; onChange(); }
+    if (!Number.isFinite(v)) return;
+    const stored = scale === 1 ? v : v / scale;
+    // `omitDefault`: the default is left out of the preset, as the core writes it.
+    if (f.omitDefault && stored === f.def) delete stage[f.key]; else stage[f.key] = stored;
+    range.value = v;
+    onChange();
   };
   num.addEventListener('change', () => commit(num.value));
   range.addEventListener('input', () => { num.value = range.value; commit(range.value); });

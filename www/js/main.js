@@ -2,13 +2,17 @@
 // Imports go one way, from here down: main → presets → panels (chain editor, preparation, export; fields) → views,
 // live mode → audition → session (load, render) → worker client, state → schema, util. Lower modules reach higher
 // ones only through the hooks wired below (session.hooks, audio.onstart).
-import { $, el, setStatus, dbToGain } from './util.js';
+import { $, el, setStatus } from './util.js';
+import { state } from './state.js';
 import { call, wasmBytes } from './worker-client.js';
 import { hooks, loadSource } from './session.js';
 import { renderChain, markStageErrors, setupStageTools } from './chain-editor.js';
 import { renderPrep, drawPrepReport } from './prep-panel.js';
 import { renderExport, drawBudget, doExport } from './export.js';
 import { setupPresetTools, setBuiltinPresets } from './presets.js';
+import { setupHistory, record } from './history.js';
+import { wavSize, refuseIfTooLong } from './limits.js';
+import { requestRender } from './session.js';
 import { drawWave, setupWaveform, refreshEnvelope, tick, showLoopFields } from './views/waveform.js';
 import { drawSpectrum, spectrumReadout } from './views/spectrum.js';
 import { drawMeters } from './views/meters.js';
@@ -25,8 +29,8 @@ function drawAll() {
   drawBudget();
 }
 
-hooks.presetChanged = () => live.presetChanged();
-hooks.rendered = () => { markStageErrors(null); showStale(null); drawAll(); audio.refresh(); };
+hooks.presetChanged = () => { record(); live.presetChanged(); };
+hooks.rendered = () => { markStageErrors(null); showStale(null); drawAll(); audio.refresh(); audio.applyMonitor(); };
 hooks.refused = (message) => { const text = markStageErrors(message); showStale(text); return text; };
 hooks.sourceLoaded = () => { audio.newSource(); requestSweep(); showLoopFields(); };
 
@@ -86,26 +90,35 @@ function setupAudition() {
     if (ev.code === 'Space' && !control) { ev.preventDefault(); audio.toggle(); }
   });
   document.querySelectorAll('input[name=listen]').forEach((r) => r.addEventListener('change', () => {
+    audio.applyMonitor();
     if (audio.playing) audio.start(audio.position());
   }));
+  $('match-loudness').onchange = () => {
+    state.matchLoudness = $('match-loudness').checked;
+    if (state.matchLoudness) requestRender(); else audio.applyMonitor();
+  };
   $('loop').onchange = () => { if (audio.playing) audio.start(audio.position()); };
   $('monitor').oninput = () => {
     const db = +$('monitor').value;
     $('monitor-out').textContent = `${db < 0 ? '−' : ''}${Math.abs(db)} dB`;
-    if (audio.monitor) audio.monitor.gain.setTargetAtTime(dbToGain(db), audio.ctx.currentTime, 0.02);
+    audio.applyMonitor();
   };
 }
 
 async function openFile(f) {
-  const bytes = await f.arrayBuffer();
-  const head = new Uint8Array(bytes, 0, Math.min(12, bytes.byteLength));
+  const head = new Uint8Array(await f.slice(0, 12).arrayBuffer());
   const isWav = String.fromCharCode(...head.slice(0, 4)) === 'RIFF' && String.fromCharCode(...head.slice(8, 12)) === 'WAVE';
+  // A WAV file too long for the page is refused from its header, before it is read (see limits.js).
+  if (isWav && refuseIfTooLong(f.name, await wavSize(f).catch(() => null))) return;
+  const bytes = await f.arrayBuffer();
   if (isWav) return loadSource({ wav: bytes }, f.name, [bytes]);
   // Anything else: let the browser decode it. decodeAudioData resamples to the context's rate, so ask for a context
   // at a common rate and say so.
   try {
     const ctx = new OfflineAudioContext(1, 1, 48000);
     const b = await ctx.decodeAudioData(bytes);
+    if (refuseIfTooLong(f.name, { samples: b.length * b.numberOfChannels, frames: b.length,
+      channels: b.numberOfChannels, rate: b.sampleRate })) return;
     const inter = new Float32Array(b.length * b.numberOfChannels);
     for (let c = 0; c < b.numberOfChannels; c++) {
       const d = b.getChannelData(c);
@@ -122,6 +135,7 @@ async function openFile(f) {
 async function main() {
   setupStageTools();
   setupPresetTools();
+  setupHistory();
   setupViews();
   setupAudition();
   setupTabs();
@@ -139,6 +153,7 @@ async function main() {
   const demo = $('demo');
   for (const d of ready.demos) demo.append(el('option', { value: d }, d));
   demo.onchange = () => { if (demo.value) loadSource({ demo: demo.value }, demo.value); };
+  window.stairstepMemory = () => call('memory'); // the worker's WebAssembly memory, for tests and the curious
   await loadSource({ demo: ready.demos[0] }, ready.demos[0]);
   document.body.dataset.ready = 'true';
 }

@@ -1,7 +1,7 @@
 // The core's refusals in plain language, naming the place as the page shows it. The core says, for example,
 //   parameter `stages[1].bits` is 30, allowed: 1..=24
 // (stages counted from 0); the page says "Stage 2, Uniform quantizer: Bits cannot be 30. Allowed: 1 to 24 bit."
-import { STAGES, EXPORT_TYPES } from './schema.js';
+import { STAGES, EXPORT_TYPES, MIX_FIELD } from './schema.js';
 
 const PREP_LABELS = {
   channels: 'Channels', trim: 'Trim silence', threshold_dbfs: 'Trim threshold', margin_ms: 'Trim margin',
@@ -23,9 +23,9 @@ export function locate(path, preset) {
     const index = +stage[1];
     const kind = preset?.stages?.[index]?.kind;
     const schema = STAGES[kind];
-    const f = schema?.fields.find((x) => x.key === stage[2]);
+    const f = stage[2] === 'mix' ? MIX_FIELD : schema?.fields.find((x) => x.key === stage[2]);
     return { index, key: stage[2], place: `Stage ${index + 1}${schema ? `, ${schema.label}` : ''}`,
-      field: f ? f.label : stage[2].replace(/_/g, ' '), unit: f?.unit };
+      field: f ? f.label : stage[2].replace(/_/g, ' '), unit: f?.unit, scale: f?.scale };
   }
   const exp = /^export\.?(.*)$/.exec(path);
   if (exp) {
@@ -38,6 +38,7 @@ export function locate(path, preset) {
     const field = keys.map((k) => PREP_LABELS[k] ?? k.replace(/_/g, ' ')).join(' ');
     return { index: null, place: 'Preparation', field };
   }
+  if (path === 'mix') return { index: null, place: 'Chain', field: 'Mix', unit: MIX_FIELD.unit, scale: MIX_FIELD.scale };
   return { index: null, place: null, field: path.replace(/_/g, ' ') };
 }
 
@@ -48,6 +49,11 @@ export function plainError(message, preset) {
   const where = locate(m[1], preset);
   const field = where.field ? where.field.charAt(0).toUpperCase() + where.field.slice(1) : 'This value';
   const place = where.place ? `${where.place}: ` : '';
-  const text = `${place}${field} cannot be ${m[2]}. Allowed: ${plainRange(m[3], where.unit)}.`;
+  // A mix is 0..1 in the preset and in the core's words, in per cent on the page.
+  const scaled = (v) => (where.scale && /^-?[\d.]+$/.test(v.trim()) ? String(Math.round(+v * where.scale * 1e6) / 1e6) : v);
+  const allowed = where.scale ? m[3].replace(/^(-?[\d.]+)(\.\.=| to )(-?[\d.]+)/, (_, a, to, b) => `${scaled(a)}${to}${scaled(b)}`)
+    : m[3];
+  const value = where.scale ? `${scaled(m[2])} ${where.unit}` : m[2];
+  const text = `${place}${field} cannot be ${value}. Allowed: ${plainRange(allowed, where.unit)}.`;
   return { text, index: where.index, key: where.key };
 }

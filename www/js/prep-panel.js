@@ -28,7 +28,7 @@ export function renderPrep() {
     const f = prep[key];
     return row(label, toggle(key, () => ({ ms: key === 'fade_in' ? 5 : 50, curve: 'linear' }), 'on'),
       ...(f ? [...num(`prep-${key}-ms`, f.ms, 0, 60000, 1, 'ms', (v) => { f.ms = v; requestRender(); }),
-        el('select', { 'aria-label': `${label} curve`, onchange: (e) => { f.curve = e.target.value; requestRender(); } },
+        el('select', { id: `prep-${key}-curve`, 'aria-label': `${label} curve`, onchange: (e) => { f.curve = e.target.value; requestRender(); } },
           ...CURVES.map((c) => el('option', { value: c, selected: c === (f.curve ?? 'linear') }, c)))] : []));
   };
   const norm = prep.normalize;
@@ -68,7 +68,7 @@ export function renderPrep() {
         $('prep-loop-set').focus();
       } }, 'Use selection'),
     ...(loop ? [...num('prep-loop-xfade', loop.crossfade_ms ?? 0, 0, 1000, 1, 'ms crossfade', (v) => { loop.crossfade_ms = v; requestRender(); }),
-      el('button', { type: 'button', 'aria-label': 'Remove the loop', onclick: () => { delete prep.loop_region; changed(); $('prep-loop-set').focus(); } }, '✕')] : []),
+      el('button', { type: 'button', id: 'prep-loop-remove', 'aria-label': 'Remove the loop', onclick: () => { delete prep.loop_region; changed(); $('prep-loop-set').focus(); } }, '✕')] : []),
       el('span', { class: 'note', id: 'prep-loop-note', role: 'alert' })),
   );
 }
@@ -96,7 +96,7 @@ export function drawPrepReport() {
       `Into ${h.bits} bits: peak ${h.peak_dbfs.toFixed(2)} dBFS, headroom ${h.headroom_db.toFixed(2)} dB = ` +
       `${Math.round(h.headroom_lsb).toLocaleString('en')} LSB, ${h.used_bits.toFixed(1)} of ${h.bits - 1} magnitude bits used; ` +
       `best pre-gain without clipping ${gain >= 0 ? '+' : ''}${gain.toFixed(2)} dB`,
-      el('button', { type: 'button', title: 'Insert a gain stage with this gain at the start of the chain',
+      el('button', { type: 'button', id: 'headroom-apply', title: 'Insert a gain stage with this gain at the start of the chain',
         onclick: () => {
           const first = state.preset.stages[0];
           const g = Math.floor(gain * 100) / 100;

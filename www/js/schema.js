@@ -63,7 +63,27 @@ export const STAGES = {
       { key: 'subnormals', label: 'Subnormals', type: 'bool', def: true },
     ],
   },
+  filter: {
+    label: 'Filter (biquad)',
+    fields: [
+      { key: 'shape', label: 'Shape', ...E(['lowpass', 'highpass', 'bandpass', 'lowshelf', 'highshelf', 'peaking']),
+        def: 'lowpass' },
+      { key: 'freq_hz', label: 'Frequency', type: 'float', min: 1, max: 384000, step: 1, unit: 'Hz', def: 4000,
+        range: [20, 20000] },
+      { key: 'q', label: 'Q', type: 'float', min: 0.1, max: 40, step: 0.01, unit: '', def: 0.7071067811865476,
+        range: [0.1, 10] },
+      { key: 'gain_db', label: 'Gain', type: 'float', min: -48, max: 48, step: 0.1, unit: 'dB', def: 0,
+        when: (s) => ['lowshelf', 'highshelf', 'peaking'].includes(s.shape ?? 'lowpass') },
+      { key: 'sections', label: 'Sections', type: 'int', min: 1, max: 8, step: 1, unit: '', def: 1 },
+    ],
+  },
 };
+
+// Blend, a field of every stage but the rate stage (`mix`, 0..1 in the preset, shown in per cent; 1, the default,
+// is left out of the preset as the core writes it) and of the chain (the preset's `mix`).
+export const MIX_FIELD = { key: 'mix', label: 'Mix', type: 'float', min: 0, max: 100, step: 1, unit: '%', def: 1,
+  scale: 100, omitDefault: true };
+export const mixApplies = (stage) => stage.kind !== 'rate';
 
 // Export formats: the `type` picks one of these, its fields are edited like a stage's.
 export const EXPORT_TYPES = {

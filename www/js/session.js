@@ -20,8 +20,10 @@ export function requestRender() {
   rendering = true;
   pendingRender = false;
   const view = { ...viewRange(), columns: waveColumns(), fftSize: state.fftSize, window: state.window };
-  call('render', { preset: JSON.stringify(state.preset), view })
+  const preset = JSON.stringify(state.preset);
+  call('render', { preset, view, loudness: state.matchLoudness })
     .then((msg) => {
+      state.renderedPreset = preset; // what the views show (tests compare it with the preset being edited)
       state.report = msg.report;
       state.headroom = msg.headroom;
       state.spectra = msg.spectra;
@@ -30,11 +32,16 @@ export function requestRender() {
       if (!msg.referenceSame) state.reference = msg.reference.length ? msg.reference : null;
       state.errorSignal = null;
       state.renderMs = msg.ms;
+      state.loudness = msg.loudness;
       hooks.rendered();
       setStatus(`Rendered in ${msg.ms.toFixed(0)} ms`);
       document.body.dataset.rendered = String((+document.body.dataset.rendered || 0) + 1);
     })
-    .catch((err) => { setStatus(hooks.refused(err.message) ?? err.message, 'error'); })
+    .catch((err) => {
+      state.refusedPreset = preset;
+      setStatus(hooks.refused(err.message) ?? err.message, 'error');
+      document.body.dataset.refused = String((+document.body.dataset.refused || 0) + 1);
+    })
     .finally(() => { rendering = false; if (pendingRender) requestRender(); });
 }
 

@@ -13,6 +13,8 @@ export const state = {
             stages: [{ kind: 'quantize', bits: 8 }], export: { type: 'wav', encoding: 'pcm-s16' } },
   view: { start: 0, end: 0 },
   loop: null, // { start, end } in frames, or null for the whole sound
+  matchLoudness: false, // play the processed render at the chain input's loudness (see audition.js)
+  loudness: null, // { input, output } in LUFS, from the latest render when matchLoudness is on
   fftSize: 4096,
   window: 'hann',
 };
