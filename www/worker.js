@@ -1,6 +1,7 @@
 // Stairstep processing worker, a classic worker script. The build prepends wasm-bindgen's no-modules glue, which
 // defines the global `wasm_bindgen` (with `initSync` and `Session`).
-// All DSP runs here, so the page never freezes. Messages in: init, load, render; out: ready, loaded, rendered, error.
+// All DSP runs here, so the page never freezes. Messages in: init, load, render, error (the error signal) and more
+// (see `handlers`); out: ready, loaded, rendered, error-signal, error.
 
 const { initSync, Session } = wasm_bindgen;
 let session = null;
@@ -22,8 +23,6 @@ function describe(info) {
 // MAX_WAVE_LANES.
 const MAX_WAVE_LANES = 8;
 let renderedChannels = 1;
-// The preparation (as JSON) of the chain input the page last received, so that it is sent once, not on every render.
-let referenceFor = null;
 // The chain input's loudness (LUFS), kept for the preparation (as JSON) it was measured with; dropped on a load.
 let inputLoudness = null;
 function envelopes(v) {
@@ -40,7 +39,8 @@ const handlers = {
   init(msg) {
     wasm = initSync({ module: msg.wasm });
     session = new Session();
-    reply('ready', { id: msg.id, demos: JSON.parse(Session.demoNames()), presets: JSON.parse(Session.builtinPresets()) });
+    reply('ready', { id: msg.id, demos: JSON.parse(Session.demoNames()), presets: JSON.parse(Session.builtinPresets()),
+      schema: JSON.parse(Session.stageSchema()) });
   },
 
   load(msg) {
@@ -49,9 +49,16 @@ const handlers = {
     else if (msg.wav) info = session.loadWav(new Uint8Array(msg.wav));
     else info = session.loadSamples(msg.sampleRate, msg.channels, msg.interleaved);
     const d = describe(info);
-    referenceFor = null;
     inputLoudness = null;
     reply('loaded', { id: msg.id, ...d, name: msg.name }, d.input.map((a) => a.buffer));
+  },
+
+  // The error signal (audition − chain input) of the latest render, from the core (NaN → 0, ±Inf → ±1 as the chain
+  // sanitizes its input), for listening to the error alone.
+  error(msg) {
+    const channels = [];
+    for (let c = 0; c < renderedChannels; c++) channels.push(session.errorSignal(c));
+    reply('error-signal', { id: msg.id, channels }, channels.map((a) => a.buffer));
   },
 
   render(msg) {
@@ -65,14 +72,7 @@ const handlers = {
     const env = envelopes(v);
     const output = [];
     for (let c = 0; c < report.channels; c++) output.push(session.samples('output', c));
-    // With asset preparation the chain's input differs from the loaded sound: send it, for the error signal, when
-    // the preparation changed since the page last got it.
     const preset = JSON.parse(msg.preset);
-    const prepKey = report.prep ? JSON.stringify(preset.prep) : null;
-    const referenceSame = prepKey !== null && prepKey === referenceFor;
-    const reference = [];
-    if (report.prep && !referenceSame) for (let c = 0; c < report.channels; c++) reference.push(session.samples('input', c));
-    referenceFor = prepKey;
     const q = preset.stages.find((st) => st.kind === 'quantize' && !st.bypass && !st.levels);
     const headroom = JSON.parse(session.headroom(q ? (q.bits ?? 8) : 16, 0));
     let file = null;
@@ -86,9 +86,9 @@ const handlers = {
       loudness = { input: inputLoudness.value, output: session.loudness('output') ?? null };
     }
     const ms = performance.now() - t0;
-    const transfer = [...Object.values(spectra), ...env.input, ...env.output, ...output, ...reference].map((a) => a.buffer);
+    const transfer = [...Object.values(spectra), ...env.input, ...env.output, ...output].map((a) => a.buffer);
     if (file) transfer.push(file.buffer);
-    reply('rendered', { id: msg.id, report, headroom, spectra, env, output, reference, referenceSame, file, loudness, ms }, transfer);
+    reply('rendered', { id: msg.id, report, headroom, spectra, env, output, file, loudness, ms }, transfer);
   },
 
   // The size of the module's memory (it only grows: the high-water mark of everything so far), in bytes.

@@ -105,6 +105,11 @@ test('A/B switching and loop playback', async () => {
   assert.ok(Math.abs(p.ls * p.sr - loop.start) < 1 && Math.abs(p.le * p.sr - loop.end) < 1);
   for (const which of ['input', 'error', 'output']) {
     await page.click(`input[name=listen][value=${which}]`, { force: true });
+    // The error signal is fetched from the core's worker the first time it is heard: wait for the switch.
+    await page.waitForFunction((w) => {
+      const a = window.stairstepAudio;
+      return Object.entries(a.buffers).find(([, b]) => b === a.node.buffer)?.[0] === w;
+    }, which);
     p = await playing();
     assert.equal(p.which, which);
   }

@@ -2,6 +2,7 @@
 // limited. The monitor starts low (see the Monitor control in index.html).
 import { $, dbToGain } from './util.js';
 import { state } from './state.js';
+import { call } from './worker-client.js';
 
 export const audio = {
   ctx: null,
@@ -77,6 +78,10 @@ export const audio = {
 
   start(atFrame) {
     this.ensure();
+    if (this.listen() === 'error' && !state.errorSignal && state.output) {
+      fetchError().then(() => { if (state.errorSignal) this.start(atFrame); });
+      return;
+    }
     const b = this.buffer(this.listen());
     if (!b) return;
     const node = new AudioBufferSourceNode(this.ctx, { buffer: b });
@@ -131,17 +136,18 @@ export const audio = {
   loopChanged() { if (this.playing) this.start(this.position()); },
 };
 
-function errorSignal() {
-  if (state.errorSignal) return state.errorSignal;
-  if (!state.output) return null;
-  const input = state.reference ?? state.input;
-  state.errorSignal = state.output.map((o, c) => {
-    const x = input[Math.min(c, input.length - 1)];
-    const e = new Float32Array(o.length);
-    for (let i = 0; i < o.length; i++) e[i] = o[i] - (Number.isFinite(x[i]) ? x[i] : 0);
-    return e;
-  });
-  return state.errorSignal;
+// The error signal (processed − chain input) comes from the core, which sanitizes the input exactly as the chain
+// does (NaN → 0, ±Inf → ±1); it is asked for only when someone listens to it, once per render.
+let errorFetch = null;
+function errorSignal() { return state.errorSignal; }
+function fetchError() {
+  if (!errorFetch) {
+    const asked = state.output;
+    errorFetch = call('error')
+      .then((msg) => { if (state.output === asked) state.errorSignal = msg.channels; })
+      .finally(() => { errorFetch = null; });
+  }
+  return errorFetch;
 }
 
 export function updatePlayButton() { $('play').textContent = audio.playing ? '■ Stop' : '▶ Play'; }

@@ -7,6 +7,7 @@ import { state } from './state.js';
 import { call, wasmBytes } from './worker-client.js';
 import { hooks, loadSource } from './session.js';
 import { renderChain, markStageErrors, setupStageTools } from './chain-editor.js';
+import { useCoreSchema } from './schema.js';
 import { renderPrep, drawPrepReport } from './prep-panel.js';
 import { renderExport, drawBudget, doExport } from './export.js';
 import { setupPresetTools, setBuiltinPresets } from './presets.js';
@@ -149,6 +150,8 @@ async function main() {
   document.addEventListener('drop', (e) => { e.preventDefault(); const f = e.dataTransfer.files[0]; if (f) openFile(f); });
   setStatus('Starting the engine…');
   const ready = await call('init', { wasm: wasmBytes.buffer }, [wasmBytes.buffer]);
+  useCoreSchema(ready.schema);
+  renderChain();
   setBuiltinPresets(ready.presets);
   const demo = $('demo');
   for (const d of ready.demos) demo.append(el('option', { value: d }, d));

@@ -1,83 +1,32 @@
-// Stage schema: what the chain editor shows for each stage kind, and the export formats. Ranges mirror the core's
-// validation; the core has the last word (its error messages name the field and range).
+// Stage schema: what the chain editor shows for each stage kind (from the core), and the export formats. The core has
+// the last word on every value (its error messages name the field and range).
 
 const E = (options) => ({ type: 'enum', options });
-const LAWS = E(['mulaw', 'alaw']);
-export const STAGES = {
-  gain: {
-    label: 'Gain and overflow',
-    fields: [
-      { key: 'gain_db', label: 'Gain', type: 'float', min: -60, max: 60, step: 0.1, unit: 'dB', def: 0 },
-      { key: 'overflow', label: 'Beyond ±1', ...E(['clip', 'wrap', 'fold', 'saturate']), def: 'clip' },
-    ],
-  },
-  rate: {
-    label: 'Sample-rate reduction',
-    fields: [
-      { key: 'rate_hz', label: 'Rate', type: 'int', min: 1, max: 768000, step: 1, unit: 'Hz', def: 11025,
-        range: [1000, 48000] },
-      { key: 'mode', label: 'Mode', ...E(['hold', 'clean']), def: 'hold' },
-    ],
-  },
-  quantize: {
-    label: 'Uniform quantizer',
-    fields: [
-      { key: 'bits', label: 'Bits', type: 'int', min: 1, max: 24, unit: 'bit', def: 8 },
-      { key: 'grid', label: 'Grid', ...E(['mid-tread', 'mid-rise']), def: 'mid-tread' },
-      { key: 'rounding', label: 'Rounding', ...E(['nearest', 'truncate']), def: 'nearest' },
-      { key: 'dither', label: 'Dither', ...E(['none', 'rpdf', 'tpdf', 'highpass-tpdf']), def: 'none' },
-      { key: 'dither_peak_lsb', label: 'Dither peak', type: 'float', min: 0, max: 16, step: 0.05, unit: 'LSB',
-        def: null, placeholder: 'standard' },
-      { key: 'shaping', label: 'Noise shaping', ...E(['none', 'first-order', 'second-order', 'ewt5', 'ewt9']),
-        def: 'none' },
-    ],
-  },
-  g711: {
-    label: 'G.711 (8-bit μ-law / A-law)',
-    fields: [{ key: 'law', label: 'Law', ...LAWS, def: 'mulaw' }],
-  },
-  compand: {
-    label: 'Companding curve',
-    fields: [
-      { key: 'law', label: 'Law', ...LAWS, def: 'mulaw' },
-      { key: 'mu', label: 'μ', type: 'float', min: 1, max: 100000, step: 1, unit: '', def: 255,
-        when: (s) => (s.law ?? 'mulaw') === 'mulaw' },
-      { key: 'a', label: 'A', type: 'float', min: 1, max: 1000, step: 0.1, unit: '', def: 87.6,
-        when: (s) => s.law === 'alaw' },
-      { key: 'bits', label: 'Bits', type: 'int', min: 2, max: 24, unit: 'bit', def: 8 },
-    ],
-  },
-  adpcm: {
-    label: 'IMA ADPCM round trip (4-bit)',
-    fields: [
-      { key: 'samples_per_block', label: 'Block', type: 'int', min: 9, max: 65529, step: 8, unit: 'samples', def: 505,
-        range: [9, 4089] },
-    ],
-  },
-  minifloat: {
-    label: 'Minifloat',
-    fields: [
-      { key: 'exponent_bits', label: 'Exponent', type: 'int', min: 1, max: 8, unit: 'bit', def: 4 },
-      { key: 'mantissa_bits', label: 'Mantissa', type: 'int', min: 0, max: 23, unit: 'bit', def: 3 },
-      { key: 'bias', label: 'Bias', type: 'int', min: 0, max: 255, unit: '', def: null, placeholder: 'IEEE' },
-      { key: 'subnormals', label: 'Subnormals', type: 'bool', def: true },
-    ],
-  },
-  filter: {
-    label: 'Filter (biquad)',
-    fields: [
-      { key: 'shape', label: 'Shape', ...E(['lowpass', 'highpass', 'bandpass', 'lowshelf', 'highshelf', 'peaking']),
-        def: 'lowpass' },
-      { key: 'freq_hz', label: 'Frequency', type: 'float', min: 1, max: 384000, step: 1, unit: 'Hz', def: 4000,
-        range: [20, 20000] },
-      { key: 'q', label: 'Q', type: 'float', min: 0.1, max: 40, step: 0.01, unit: '', def: 0.7071067811865476,
-        range: [0.1, 10] },
-      { key: 'gain_db', label: 'Gain', type: 'float', min: -48, max: 48, step: 0.1, unit: 'dB', def: 0,
-        when: (s) => ['lowshelf', 'highshelf', 'peaking'].includes(s.shape ?? 'lowpass') },
-      { key: 'sections', label: 'Sections', type: 'int', min: 1, max: 8, step: 1, unit: '', def: 1 },
-    ],
-  },
-};
+// Filled from the core's own schema (Session.stageSchema, the same data `stairstep stages --json` prints) when the
+// engine starts: each kind's label and fields with unit, allowed range, step, slider range, default, placeholder and
+// the field that decides whether another one applies. The ranges are the constants the core validates with.
+export const STAGES = {};
+
+// One field of the core's schema in the shape the page's controls use.
+function fromCore(f, fields) {
+  const out = { key: f.key, label: f.label, type: f.type, unit: f.unit ?? '', def: f.default ?? null };
+  if (f.type === 'enum') out.options = f.options;
+  if (f.min !== undefined) Object.assign(out, { min: f.min, max: f.max, step: f.step });
+  if (f.slider) out.range = f.slider;
+  if (f.placeholder) out.placeholder = f.placeholder;
+  if (f.when) {
+    const other = fields.find((g) => g.key === f.when.field);
+    const fallback = other ? other.default : undefined;
+    out.when = (s) => f.when.is.includes(String(s[f.when.field] ?? fallback));
+  }
+  return out;
+}
+
+// Replaces the stage table by the core's schema (a JSON array of kinds).
+export function useCoreSchema(kinds) {
+  for (const k of Object.keys(STAGES)) delete STAGES[k];
+  for (const k of kinds) STAGES[k.kind] = { label: k.label, fields: k.fields.map((f) => fromCore(f, k.fields)) };
+}
 
 // Blend, a field of every stage but the rate stage (`mix`, 0..1 in the preset, shown in per cent; 1, the default,
 // is left out of the preset as the core writes it) and of the chain (the preset's `mix`).

@@ -29,7 +29,6 @@ export function requestRender() {
       state.spectra = msg.spectra;
       state.env = msg.env;
       state.output = msg.output;
-      if (!msg.referenceSame) state.reference = msg.reference.length ? msg.reference : null;
       state.errorSignal = null;
       state.renderMs = msg.ms;
       state.loudness = msg.loudness;
