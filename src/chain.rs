@@ -19,7 +19,7 @@ use crate::audio::Clip;
 use crate::error::{Error, Result};
 use crate::preset::Preset;
 use crate::sample::sanitize;
-use crate::stages::rate::{reduced_len, RateExpander, RateReducer};
+use crate::stages::rate::{clean_block_len, reduced_len, RateExpander, RateReducer, CLEAN_MAX_CHAIN_BLOCKS};
 use crate::stages::{self, Stage, StageSpec, BLOCK};
 use serde::Serialize;
 use std::collections::VecDeque;
@@ -196,6 +196,24 @@ impl Chain {
                 "a second active rate stage",
                 "at most one active rate stage per chain",
             ));
+        }
+        // The clean filter's memory grows with its block times the channels: bounded, so that a small file declaring
+        // many channels cannot make a chain take gigabytes.
+        if let Some(&i) = active_rates.first() {
+            if let StageSpec::Rate(p) = &preset.stages[i].stage {
+                let block = clean_block_len(p, sample_rate).map_err(|e| e.at(&format!("stages[{i}]")))?;
+                if let Some(block) = block.filter(|b| b * channels as u64 > CLEAN_MAX_CHAIN_BLOCKS) {
+                    return Err(Error::param(
+                        format!("stages[{i}].rate_hz"),
+                        p.rate_hz,
+                        format!(
+                            "a rate whose clean-mode filter block ({block} samples at {sample_rate} Hz) times the \
+                             {channels} channels stays within {CLEAN_MAX_CHAIN_BLOCKS} samples; use hold mode, fewer \
+                             channels or a rate closer to the source rate"
+                        ),
+                    ));
+                }
+            }
         }
         let mut export_rate = sample_rate;
         let mut lanes = Vec::with_capacity(channels);

@@ -97,6 +97,11 @@ pub const CLEAN_LOW_BLOCK: u64 = 512;
 /// Largest FFT block on the high-rate side of the clean-mode filter, in samples (bounds its memory to a few MB).
 pub const CLEAN_MAX_BLOCK: u64 = 1 << 18;
 
+/// Largest sum over a chain's channels of the clean-mode filter's source-rate FFT block, in samples: each channel's
+/// filters and buffers take about 90 bytes per block sample, so this keeps a chain under about 200 MB however many
+/// channels a small file declares (8 channels at the largest block, 64 at 32,768 samples, e.g. 48 → 8 kHz).
+pub const CLEAN_MAX_CHAIN_BLOCKS: u64 = 1 << 21;
+
 /// How the rate is reduced.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
 #[serde(rename_all = "kebab-case")]
@@ -139,6 +144,12 @@ impl RateParams {
     pub fn validate(&self, source_rate: u32) -> Result<()> {
         Plan::new(self, source_rate).map(|_| ())
     }
+}
+
+/// Samples in the clean-mode filter's FFT block on the source-rate side (`None` in hold mode or at equal rates).
+pub fn clean_block_len(params: &RateParams, source_rate: u32) -> Result<Option<u64>> {
+    let plan = Plan::new(params, source_rate)?;
+    Ok(plan.is_clean().then(|| plan.clean_blocks() * plan.hi))
 }
 
 /// Number of reduced samples for `n` source samples: `⌈n·target_rate/source_rate⌉`, the instants `k/target_rate`
