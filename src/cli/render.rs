@@ -4,7 +4,7 @@
 //! single-threaded run (`--jobs 1`). Failures do not stop the batch; they are listed at the end and make the exit
 //! code non-zero.
 
-use super::{load_preset, read_file, write_atomic, write_atomic_with, Failure, EXIT_INPUT, EXIT_OUTPUT, EXIT_USAGE};
+use super::{load_preset, write_atomic, write_atomic_with, Failure, EXIT_INPUT, EXIT_OUTPUT, EXIT_USAGE};
 use indicatif::{ProgressBar, ProgressStyle};
 use rayon::prelude::*;
 use serde::Serialize;
@@ -100,8 +100,11 @@ struct Job {
     output: PathBuf,
 }
 
-fn is_wav(p: &Path) -> bool {
-    p.extension().is_some_and(|e| e.eq_ignore_ascii_case("wav") || e.eq_ignore_ascii_case("wave"))
+/// File name extensions a folder walk picks up (the content decides how a file is read; see `io::decode`).
+const SOUND_EXTENSIONS: [&str; 11] = ["wav", "wave", "flac", "aif", "aiff", "aifc", "ogg", "oga", "mp3", "caf", "m4a"];
+
+fn is_sound(p: &Path) -> bool {
+    p.extension().is_some_and(|e| SOUND_EXTENSIONS.iter().any(|s| e.eq_ignore_ascii_case(s)))
 }
 
 fn collect(dir: &Path, base: &Path, recursive: bool, out: &mut Vec<(PathBuf, PathBuf)>) -> Result<(), Failure> {
@@ -115,7 +118,7 @@ fn collect(dir: &Path, base: &Path, recursive: bool, out: &mut Vec<(PathBuf, Pat
             if recursive {
                 collect(&p, base, recursive, out)?;
             }
-        } else if is_wav(&p) {
+        } else if is_sound(&p) {
             let rel = p.parent().and_then(|d| d.strip_prefix(base).ok()).unwrap_or(Path::new("")).to_path_buf();
             out.push((p, rel));
         }
@@ -140,7 +143,10 @@ fn plan(args: &Args, preset: &Preset, export: &ExportFormat) -> Result<Vec<Job>,
         }
     }
     if found.is_empty() {
-        return Err(Failure::new(EXIT_INPUT, "no WAV files found in the inputs given"));
+        return Err(Failure::new(
+            EXIT_INPUT,
+            "no sound files (WAV, FLAC, AIFF, Ogg, MP3, CAF) found in the inputs given",
+        ));
     }
     let jobs: Vec<Job> = match (&args.output, &args.out_dir) {
         (Some(out), None) => {
@@ -285,10 +291,11 @@ fn render_in_memory(
     export: &ExportFormat,
     force: bool,
 ) -> Result<(Measured, Vec<String>), Failure> {
-    let (clip, meta) =
-        io::wav::read_with_meta(&read_file(&job.input)?).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
-    // A loop in the file's own `smpl` chunk is kept when the preset sets none; damaged metadata is a warning.
-    let file_loop = meta.loops.first().map(|l| (l.start as u64, l.end as u64 + 1));
+    let decoded = io::decode::read_any_file(&job.input).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
+    let (clip, warnings) = (decoded.clip, decoded.warnings);
+    // A loop in the file's own `smpl` (WAV) or `INST` (AIFF) chunk is kept when the preset sets none; damaged
+    // metadata is a warning.
+    let file_loop = decoded.file_loop;
     let r = chain::render_with_loop(preset, &clip, file_loop).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
     let bytes = r.encode(export).map_err(|e| Failure::new(EXIT_OUTPUT, e.to_string()))?;
     write_atomic(&job.output, &bytes, force)?;
@@ -300,7 +307,7 @@ fn render_in_memory(
         bytes: bytes.len() as u64,
         loop_frames: r.export_meta.loops.first().map(|l| (l.start, l.end)),
     };
-    Ok((m, meta.warnings))
+    Ok((m, warnings))
 }
 
 fn render_one(

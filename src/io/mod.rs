@@ -1,6 +1,9 @@
-//! Reading and writing sound files: WAV (RIFF/WAVE), raw headerless samples, C source arrays.
+//! Reading and writing sound files: WAV (RIFF/WAVE), AIFF/AIFF-C, raw headerless samples, C source arrays.
 //!
 //! - [`wav`]: the WAV reader ([`wav::read`], [`wav::read_with_meta`]) and writer.
+//! - [`aiff`]: the AIFF/AIFF-C writer and its loop markers.
+//! - `decode` (native only): reads any supported file — WAV through [`wav`], FLAC, AIFF, Ogg Vorbis, MP3 and CAF
+//!   through `symphonia`.
 //! - [`ExportFormat`]: what a preset's `export` field says, with an exact [`file_size`](ExportFormat::file_size).
 //! - [`raw`], [`c_array`]: the headerless and C source writers.
 //!
@@ -8,12 +11,16 @@
 //! replacing NaN by 0 and ±Inf by ±1.0. So the output of an N-bit mid-tread quantizer is written without any further
 //! rounding.
 
+pub mod aiff;
 pub mod c_array;
+#[cfg(not(target_arch = "wasm32"))]
+pub mod decode;
 pub mod raw;
 pub mod wav;
 
 use crate::audio::{Clip, MAX_CHANNELS, MAX_SAMPLE_RATE};
 use crate::error::{Error, Result};
+pub use aiff::AiffEncoding;
 use serde::{Deserialize, Serialize};
 
 /// Sample encodings a WAV export can use.
@@ -108,6 +115,8 @@ pub enum CElement {
 /// - `{"type": "wav", "encoding": "pcm-s16"}`; `encoding` is one of `pcm-u8 pcm-s16 pcm-s24 pcm-s32 float32 mulaw
 ///   alaw ima-adpcm`; `ima-adpcm` also takes `"block_align": 512` (bytes per block, all channels; default 256 per
 ///   channel).
+/// - `{"type": "aiff", "encoding": "pcm-s16"}`; `encoding` is one of `pcm-s8 pcm-s16 pcm-s24 float32` (AIFF-C);
+///   see [`aiff`].
 /// - `{"type": "raw", "bits": 4, "signed": false, "endian": "little", "bit_order": "msb-first"}`; see [`raw`].
 /// - `{"type": "c-array", "element": "uint8", "name": "coin"}`; see [`c_array`].
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -122,6 +131,12 @@ pub enum ExportFormat {
         /// `None`: 256 × channels (505 samples per block).
         #[serde(default, skip_serializing_if = "Option::is_none")]
         block_align: Option<u32>,
+    },
+    /// An AIFF file (AIFF-C for float), loops in `MARK` + `INST`.
+    Aiff {
+        /// Sample encoding.
+        #[serde(default)]
+        encoding: AiffEncoding,
     },
     /// Headerless interleaved integer samples.
     Raw {
@@ -271,15 +286,18 @@ impl ExportFormat {
                     format!("only with encoding \"ima-adpcm\" (encoding is {:?})", e.name()),
                 )),
             },
+            ExportFormat::Aiff { .. } => Ok(()),
             ExportFormat::Raw { bits, .. } => raw::check_bits(*bits),
             ExportFormat::CArray { name, .. } => c_array::check_name(name),
         }
     }
 
-    /// Usual file extension, without the dot: `wav`, `raw`, or `h` for a C array.
+    /// Usual file extension, without the dot: `wav`, `aif` (`aifc` for AIFF-C), `raw`, or `h` for a C array.
     pub fn extension(&self) -> &'static str {
         match self {
             ExportFormat::Wav { .. } => "wav",
+            ExportFormat::Aiff { encoding: AiffEncoding::Float32 } => "aifc",
+            ExportFormat::Aiff { .. } => "aif",
             ExportFormat::Raw { .. } => "raw",
             ExportFormat::CArray { .. } => "h",
         }
@@ -301,6 +319,7 @@ impl ExportFormat {
             ExportFormat::Wav { encoding, block_align } => {
                 wav::file_size_with(*encoding, block_align.map(|b| b as usize), frames, channels, meta).unwrap_or(0)
             }
+            ExportFormat::Aiff { encoding } => aiff::file_size_with(*encoding, frames, channels, meta),
             ExportFormat::Raw { bits, .. } => raw::file_size(*bits, frames, channels),
             ExportFormat::CArray { element, name } => c_array::file_size(*element, name, frames, channels, meta),
         }
@@ -319,6 +338,7 @@ impl ExportFormat {
             ExportFormat::Wav { encoding, block_align } => {
                 wav::write_with(clip, *encoding, block_align.map(|b| b as usize), meta)
             }
+            ExportFormat::Aiff { encoding } => aiff::write_with(clip, *encoding, meta),
             ExportFormat::Raw { bits, signed, endian, bit_order } => raw::write(
                 clip,
                 &raw::RawLayout { bits: *bits, signed: *signed, endian: *endian, bit_order: *bit_order },
@@ -358,6 +378,13 @@ mod tests {
         let f: ExportFormat = serde_json::from_str(r#"{"type":"c-array","element":"uint8","name":"coin"}"#).unwrap();
         assert_eq!(f, ExportFormat::CArray { element: CElement::Uint8, name: "coin".into() });
         assert_eq!(serde_json::to_string(&f).unwrap(), r#"{"type":"c-array","element":"uint8","name":"coin"}"#);
+        for e in AiffEncoding::ALL {
+            let j = format!(r#"{{"type":"aiff","encoding":"{}"}}"#, e.name());
+            let f: ExportFormat = serde_json::from_str(&j).unwrap();
+            assert_eq!(f, ExportFormat::Aiff { encoding: e });
+            assert_eq!(serde_json::to_string(&f).unwrap(), j);
+        }
+        assert!(serde_json::from_str::<ExportFormat>(r#"{"type":"aiff","encoding":"pcm-u8"}"#).is_err());
         assert!(serde_json::from_str::<ExportFormat>(r#"{"type":"wav","encodin":"pcm-s16"}"#).is_err());
     }
 
