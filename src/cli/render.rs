@@ -101,7 +101,7 @@ struct Job {
 }
 
 /// File name extensions a folder walk picks up (the content decides how a file is read; see `io::decode`).
-const SOUND_EXTENSIONS: [&str; 11] = ["wav", "wave", "flac", "aif", "aiff", "aifc", "ogg", "oga", "mp3", "caf", "m4a"];
+const SOUND_EXTENSIONS: [&str; 10] = ["wav", "wave", "flac", "aif", "aiff", "aifc", "ogg", "oga", "mp3", "caf"];
 
 fn is_sound(p: &Path) -> bool {
     p.extension().is_some_and(|e| SOUND_EXTENSIONS.iter().any(|s| e.eq_ignore_ascii_case(s)))

@@ -154,19 +154,23 @@ fn guarded<T>(f: impl FnOnce() -> Result<T>) -> Result<T> {
 }
 
 fn sym(e: SymError) -> Error {
+    Error::format(sym_message(e))
+}
+
+fn sym_message(e: SymError) -> String {
     match e {
-        SymError::Unsupported(what) => Error::format(format!(
-            "not a sound file this program reads (WAV, FLAC, AIFF/AIFF-C, Ogg Vorbis, MP3, CAF): {what}"
-        )),
-        SymError::IoError(e) if e.kind() == std::io::ErrorKind::UnexpectedEof => {
-            Error::format("the file ends in the middle of its header or a packet (truncated?)")
+        SymError::Unsupported(what) => {
+            format!("not a sound file this program reads (WAV, FLAC, AIFF/AIFF-C, Ogg Vorbis, MP3, CAF): {what}")
         }
-        e => Error::format(format!("malformed file: {e}")),
+        SymError::IoError(e) if e.kind() == std::io::ErrorKind::UnexpectedEof => {
+            "the file ends in the middle of its header or a packet (truncated?)".into()
+        }
+        e => format!("malformed file: {e}"),
     }
 }
 
 fn decode_other(bytes: &[u8], extension: Option<&str>, limits: Limits) -> Result<Decoded> {
-    let bytes: Cow<'_, [u8]> = match caf_trim_packet_table(bytes) {
+    let bytes: Cow<'_, [u8]> = match caf_fixups(bytes) {
         Some(fixed) => Cow::Owned(fixed),
         None => Cow::Borrowed(bytes),
     };
@@ -203,7 +207,15 @@ fn decode_other(bytes: &[u8], extension: Option<&str>, limits: Limits) -> Result
         )));
     }
     let mut decoder =
-        symphonia::default::get_codecs().make_audio_decoder(&params, &AudioDecoderOptions::default()).map_err(sym)?;
+        symphonia::default::get_codecs().make_audio_decoder(&params, &AudioDecoderOptions::default()).map_err(|e| {
+            let what = match e {
+                SymError::Unsupported(w) | SymError::DecodeError(w) => w.to_string(),
+                e => e.to_string(),
+            };
+            Error::format(format!(
+                "the decoder cannot start: {what} (a truncated header, or a codec variant this program does not read)"
+            ))
+        })?;
     let format_name = reader.format_info().short_name;
     let codec = decoder.codec_info();
     let decoder_name = format!("symphonia {}/{}", format_name, codec.short_name);
@@ -268,16 +280,20 @@ fn decode_other(bytes: &[u8], extension: Option<&str>, limits: Limits) -> Result
 }
 
 fn at_frame(e: SymError, frame: usize) -> Error {
-    let e = sym(e);
-    Error::format(format!("{e} (at frame {frame})"))
+    Error::format(format!("{} (at frame {frame})", sym_message(e)))
 }
 
-/// A CAF quirk: libsndfile pads the packet table (`pakt`) of an ALAC file to an even size, and symphonia 0.6 reads
-/// the next chunk header straight after the last table entry instead of at the chunk's declared end, so it loses
-/// its place and reports a truncated file. When a `pakt` chunk has bytes after its entries, this returns a copy of
-/// the file whose `pakt` chunk is exactly as long as its entries (nothing else changes); `None` otherwise (not CAF,
-/// no padding, or anything unexpected — then the file is read as it is and any damage is reported by the reader).
-fn caf_trim_packet_table(bytes: &[u8]) -> Option<Vec<u8>> {
+/// Two CAF quirks between libsndfile (the writer) and symphonia 0.6 (the reader), which each make symphonia lose
+/// its place and report a truncated file:
+/// - libsndfile pads the packet table (`pakt`) of an ALAC file to an even size, and symphonia reads the next chunk
+///   header straight after the last table entry instead of at the chunk's declared end;
+/// - libsndfile writes a pad byte after an odd-sized final `data` chunk (CAF has no pad bytes), and symphonia reads
+///   it as the start of another chunk header.
+///
+/// When either is present, this returns a copy of the file with the `pakt` chunk exactly as long as its entries
+/// and fewer-than-a-chunk-header trailing bytes dropped (samples and everything else unchanged). `None`: not CAF,
+/// nothing to fix, or anything unexpected — the file is then read as it is and the reader reports any damage.
+fn caf_fixups(bytes: &[u8]) -> Option<Vec<u8>> {
     if bytes.len() < 8 || &bytes[0..4] != b"caff" {
         return None;
     }
@@ -285,11 +301,14 @@ fn caf_trim_packet_table(bytes: &[u8]) -> Option<Vec<u8>> {
     let be64 = |at: usize| Some(i64::from_be_bytes(bytes.get(at..at + 8)?.try_into().ok()?));
     let mut pos = 8usize;
     let mut entries_per_packet = None;
+    // (chunk start, end of the table's entries, chunk end) of a padded `pakt`.
+    let mut pakt_fix = None;
     while pos + 12 <= bytes.len() {
         let id = &bytes[pos..pos + 4];
-        let size = usize::try_from(be64(pos + 4)?).ok()?;
+        // A size of −1 (only allowed for a final `data` chunk) means "to the end of the file".
+        let size = be64(pos + 4)?;
         let body = pos + 12;
-        let end = body.checked_add(size)?;
+        let end = if size == -1 { bytes.len() } else { body.checked_add(usize::try_from(size).ok()?)? };
         match id {
             // `desc`: f64 rate, format id, flags, bytes per packet, frames per packet, ...; a table entry holds a
             // variable-length integer for each of the two that is 0 (variable).
@@ -308,19 +327,31 @@ fn caf_trim_packet_table(bytes: &[u8]) -> Option<Vec<u8>> {
                     }
                     at += 1;
                 }
-                if at >= end || end > bytes.len() {
+                if at > end || end > bytes.len() {
                     return None;
                 }
-                let mut fixed = Vec::with_capacity(bytes.len());
-                fixed.extend_from_slice(&bytes[..pos + 4]);
-                fixed.extend_from_slice(&((at - body) as i64).to_be_bytes());
-                fixed.extend_from_slice(&bytes[body..at]);
-                fixed.extend_from_slice(&bytes[end..]);
-                return Some(fixed);
+                if at < end {
+                    pakt_fix = Some((pos, at, end));
+                }
             }
             _ => {}
         }
         pos = end;
     }
-    None
+    let trailing = bytes.len().saturating_sub(pos);
+    if pakt_fix.is_none() && !(1..12).contains(&trailing) {
+        return None;
+    }
+    let keep = if (1..12).contains(&trailing) { pos } else { bytes.len() };
+    let mut fixed = Vec::with_capacity(keep);
+    match pakt_fix {
+        Some((start, at, end)) => {
+            fixed.extend_from_slice(&bytes[..start + 4]);
+            fixed.extend_from_slice(&((at - start - 12) as i64).to_be_bytes());
+            fixed.extend_from_slice(&bytes[start + 12..at]);
+            fixed.extend_from_slice(&bytes[end..keep]);
+        }
+        None => fixed.extend_from_slice(&bytes[..keep]),
+    }
+    Some(fixed)
 }
