@@ -355,3 +355,39 @@ fn caf_fixups(bytes: &[u8]) -> Option<Vec<u8>> {
     }
     Some(fixed)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_panic_inside_the_decoder_is_an_error() {
+        let r: Result<()> = guarded(|| panic!("index out of bounds"));
+        let e = r.unwrap_err().to_string();
+        assert!(e.contains("decoder gave up") && e.contains("index out of bounds"), "{e}");
+        // The hook only silences panics inside `guarded`; later calls still work.
+        assert_eq!(guarded(|| Ok(5)).unwrap(), 5);
+    }
+
+    #[test]
+    fn the_decoded_length_is_bounded() {
+        let clip = Clip::new(8_000, vec![vec![0.0; 1_000]; 2]).unwrap();
+        let wav = crate::io::ExportFormat::default().encode(&clip).unwrap();
+        assert!(read_any(&wav, None, Limits { max_samples: 2_000 }).is_ok());
+        let e = read_any(&wav, None, Limits { max_samples: 1_999 }).unwrap_err().to_string();
+        assert!(e.contains("in-memory limit"), "{e}");
+        let aiff = crate::io::ExportFormat::Aiff { encoding: crate::io::AiffEncoding::PcmS16 }.encode(&clip).unwrap();
+        let d = read_any(&aiff, Some("aif"), Limits { max_samples: 2_000 }).unwrap();
+        assert_eq!((d.clip.frames(), d.clip.channel_count(), d.clip.sample_rate), (1_000, 2, 8_000));
+        let e = read_any(&aiff, None, Limits { max_samples: 1_999 }).unwrap_err().to_string();
+        assert!(e.contains("in-memory limit"), "{e}");
+    }
+
+    #[test]
+    fn nothing_recognisable_is_a_clear_error() {
+        for bytes in [&b""[..], b"RIFF", b"FORM\0\0\0\x04AIFF", &[0x55; 3000]] {
+            let e = read_any(bytes, Some("flac"), Limits::default()).unwrap_err().to_string();
+            assert!(!e.is_empty());
+        }
+    }
+}
