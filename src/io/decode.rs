@@ -32,7 +32,7 @@
 use crate::audio::{Clip, MAX_CHANNELS, MAX_SAMPLE_RATE};
 use crate::error::{Error, Result};
 use std::borrow::Cow;
-use std::cell::Cell;
+use std::cell::{Cell, RefCell};
 use std::panic::{catch_unwind, AssertUnwindSafe};
 use std::path::Path;
 use std::sync::Once;
@@ -107,7 +107,11 @@ pub fn read_any(bytes: &[u8], extension: Option<&str>, limits: Limits) -> Result
     let mut decoded = guarded(|| decode_other(bytes, extension, limits))?;
     if decoded.decoder.starts_with("symphonia aiff/") {
         match super::aiff::read_loops(bytes) {
-            Ok(l) => decoded.file_loop = l.filter(|&(s, e)| s < e && e <= decoded.clip.frames() as u64),
+            Ok(Some((s, e))) if e > decoded.clip.frames() as u64 => decoded.warnings.push(format!(
+                "sustain loop {s}..{e} ends after the sound's {} frames: ignored",
+                decoded.clip.frames()
+            )),
+            Ok(l) => decoded.file_loop = l,
             Err(e) => decoded.warnings.push(format!("loop markers ignored: {e}")),
         }
     }
@@ -123,6 +127,8 @@ fn too_long(limits: Limits) -> Error {
 
 thread_local! {
     static QUIET_PANICS: Cell<bool> = const { Cell::new(false) };
+    /// Where the last quiet panic happened (file:line), for the error message.
+    static PANIC_AT: RefCell<Option<String>> = const { RefCell::new(None) };
 }
 
 /// Runs `f`, turning a panic inside it into an error; the default panic message is suppressed on this thread
@@ -132,7 +138,10 @@ fn guarded<T>(f: impl FnOnce() -> Result<T>) -> Result<T> {
     HOOK.call_once(|| {
         let previous = std::panic::take_hook();
         std::panic::set_hook(Box::new(move |info| {
-            if !QUIET_PANICS.with(Cell::get) {
+            if QUIET_PANICS.with(Cell::get) {
+                let at = info.location().map(|l| format!("{}:{}", l.file(), l.line()));
+                PANIC_AT.with(|p| *p.borrow_mut() = at);
+            } else {
                 previous(info);
             }
         }));
@@ -148,7 +157,8 @@ fn guarded<T>(f: impl FnOnce() -> Result<T>) -> Result<T> {
                 .map(|s| s.to_string())
                 .or_else(|| p.downcast_ref::<String>().cloned())
                 .unwrap_or_else(|| "unknown".into());
-            Err(Error::format(format!("malformed file: the decoder gave up ({what})")))
+            let at = PANIC_AT.with(|p| p.borrow_mut().take()).map(|a| format!(" at {a}")).unwrap_or_default();
+            Err(Error::format(format!("malformed file: the decoder gave up ({what}{at})")))
         }
     }
 }
@@ -381,6 +391,28 @@ mod tests {
         assert_eq!((d.clip.frames(), d.clip.channel_count(), d.clip.sample_rate), (1_000, 2, 8_000));
         let e = read_any(&aiff, None, Limits { max_samples: 1_999 }).unwrap_err().to_string();
         assert!(e.contains("in-memory limit"), "{e}");
+    }
+
+    #[test]
+    fn a_caf_header_that_overflows_inside_symphonia_is_an_error() {
+        // Found by the decode_any fuzz target: symphonia-format-caf 0.6.1 computes bytes_per_packet × 8 in u32
+        // (demuxer.rs, read_audio_description_chunk), which overflows — a panic where overflow checks are on (debug
+        // builds, fuzzing), a wrapped value in release. Either way the file is refused, not a crash.
+        let mut b = b"caff\x00\x01\x00\x00desc".to_vec();
+        b.extend_from_slice(&32i64.to_be_bytes());
+        b.extend_from_slice(&8_000f64.to_be_bytes());
+        b.extend_from_slice(b"alac");
+        for v in [0u32, 0xC536_C69B, 4096, 1, 16] {
+            b.extend_from_slice(&v.to_be_bytes()); // flags, bytes/packet, frames/packet, channels, bits
+        }
+        b.extend_from_slice(b"data");
+        b.extend_from_slice(&(-1i64).to_be_bytes());
+        b.extend_from_slice(&[0x5A; 64]);
+        let e = read_any(&b, None, Limits::default()).unwrap_err().to_string();
+        if cfg!(debug_assertions) {
+            // Overflow checks are on: the panic was caught, and the message says where it happened.
+            assert!(e.contains("decoder gave up") && e.contains("symphonia-format-caf"), "{e}");
+        }
     }
 
     #[test]
