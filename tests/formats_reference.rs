@@ -176,8 +176,8 @@ fn snr_db(reference: &[f32], other: &[f32]) -> f64 {
 fn lossy_files_match_libsndfile_within_its_decoder_delay() {
     let dir = tempfile::tempdir().unwrap();
     for (name, format, subtype, reader, min_snr_db) in [
-        ("tone.ogg", "OGG", "VORBIS", "symphonia ogg/vorbis", 60.0),
-        ("tone.mp3", "MP3", "MPEG_LAYER_III", "symphonia mp3/mp3", 40.0),
+        ("tone.ogg", "OGG", "VORBIS", "symphonia ogg/vorbis", 100.0),
+        ("tone.mp3", "MP3", "MPEG_LAYER_III", "symphonia mp3/mp3", 100.0),
     ] {
         let path = dir.path().join(name);
         libsndfile_write(&path, format, subtype, 44_100, 2, 88_200, false);
@@ -193,8 +193,8 @@ fn lossy_files_match_libsndfile_within_its_decoder_delay() {
             let theirs: Vec<f32> = want.samples.iter().skip(c).step_by(want.channels).copied().collect();
             let (lag, _) = best_lag(&got.clip.channels[c], &theirs, 2_000);
             assert_eq!(lag, 0, "{name} channel {c}: our decode is shifted by {lag} frames against libsndfile's");
-            // Two independent decoders of the same stream (float rounding, MP3's synthesis filter and requantizer
-            // tables) agree far above the codec's own error.
+            // Two independent decoders of the same stream agree to float rounding (measured: 127 dB for MP3 against
+            // libsndfile's mpg123, 136 dB for Vorbis against libvorbis), far above the codecs' own error.
             let snr = snr_db(&theirs, &got.clip.channels[c]);
             assert!(snr > min_snr_db, "{name} channel {c}: {snr:.1} dB against libsndfile's decode");
         }
