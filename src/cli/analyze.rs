@@ -8,7 +8,8 @@ use stairstep::{io, Clip};
 use std::path::{Path, PathBuf};
 
 pub const ANALYZE_HELP: &str = "\
-JSON fields (--json): file, sample_rate, channels, frames, duration_s; levels {peak_dbfs, rms_dbfs (a full-scale sine
+Reads WAV, FLAC, AIFF/AIFF-C, Ogg Vorbis, MP3 and CAF (PCM, ALAC).
+JSON fields (--json): file, decoder (which reader decoded the file), format, sample_rate, channels, frames, duration_s; levels {peak_dbfs, rms_dbfs (a full-scale sine
 reads 0 dBFS), dc, crest_db, at_full_scale (samples with |x| >= 1), non_finite, samples}; spectrum {fft_size, window,
 bin_hz, peaks: [{hz, dbfs}] (the five strongest local maxima), median_dbfs}; with --reference: reference, sqnr_db
 (reference power over the power of input minus reference; the files must have the same rate, channels and length).
@@ -31,9 +32,9 @@ Examples:
 
 #[derive(clap::Args)]
 pub struct AnalyzeArgs {
-    /// The WAV file to measure.
+    /// The sound file to measure (WAV, FLAC, AIFF, Ogg Vorbis, MP3, CAF).
     input: PathBuf,
-    /// A reference WAV (e.g. the original) to measure the SQNR against.
+    /// A reference sound file (e.g. the original) to measure the SQNR against.
     #[arg(long)]
     reference: Option<PathBuf>,
     /// FFT size of the spectrum summary (power of two, 64 to 65536).
@@ -46,7 +47,7 @@ pub struct AnalyzeArgs {
 
 #[derive(clap::Args)]
 pub struct SweepArgs {
-    /// The WAV file to sweep.
+    /// The sound file to sweep.
     input: PathBuf,
     /// Grid: mid-tread (PCM) or mid-rise.
     #[arg(long, default_value = "mid-tread")]
@@ -61,12 +62,18 @@ pub struct SweepArgs {
 
 /// Reads an input; what the reader noticed but read past (e.g. a truncated file) is printed on standard error.
 fn load(path: &Path) -> Result<Clip, Failure> {
-    let (clip, meta) = io::wav::read_with_meta(&read_file(path)?)
-        .map_err(|e| Failure::new(EXIT_INPUT, format!("{}: {e}", path.display())))?;
-    for w in &meta.warnings {
+    let d = read(path)?;
+    for w in &d.warnings {
         eprintln!("warn {}: {w}", path.display());
     }
-    Ok(clip)
+    Ok(d.clip)
+}
+
+/// Reads any supported sound file (WAV through the project's reader, the rest through symphonia).
+fn read(path: &Path) -> Result<io::decode::Decoded, Failure> {
+    let bytes = read_file(path)?;
+    io::decode::read_any(&bytes, path.extension().and_then(|e| e.to_str()), Default::default())
+        .map_err(|e| Failure::new(EXIT_INPUT, format!("{}: {e}", path.display())))
 }
 
 #[derive(Serialize)]
@@ -87,6 +94,8 @@ struct SpectrumSummary {
 #[derive(Serialize)]
 struct Analysis {
     file: PathBuf,
+    decoder: String,
+    format: String,
     sample_rate: u32,
     channels: usize,
     frames: usize,
@@ -118,7 +127,11 @@ fn summary(clip: &Clip, fft_size: usize) -> Result<SpectrumSummary, Failure> {
 }
 
 pub fn analyze(args: AnalyzeArgs) -> Result<(), Failure> {
-    let clip = load(&args.input)?;
+    let decoded = read(&args.input)?;
+    let clip = decoded.clip;
+    for w in &decoded.warnings {
+        eprintln!("stairstep: {}: warning: {w}", args.input.display());
+    }
     let mut sqnr = None;
     if let Some(r) = &args.reference {
         let reference = load(r)?;
@@ -145,6 +158,8 @@ pub fn analyze(args: AnalyzeArgs) -> Result<(), Failure> {
     }
     let a = Analysis {
         file: args.input.clone(),
+        decoder: decoded.decoder,
+        format: decoded.format,
         sample_rate: clip.sample_rate,
         channels: clip.channel_count(),
         frames: clip.frames(),
@@ -167,6 +182,7 @@ pub fn analyze(args: AnalyzeArgs) -> Result<(), Failure> {
         a.frames,
         a.duration_s
     );
+    println!("  read by   {} ({})", a.decoder, a.format);
     println!("  peak      {:8.2} dBFS", l.peak_dbfs);
     println!("  RMS       {:8.2} dBFS   (a full-scale sine reads 0 dBFS)", l.rms_dbfs);
     println!("  crest     {:8.2} dB", l.crest_db);

@@ -150,8 +150,11 @@ struct Job {
     stem: String,
 }
 
-fn is_wav(p: &Path) -> bool {
-    p.extension().is_some_and(|e| e.eq_ignore_ascii_case("wav") || e.eq_ignore_ascii_case("wave"))
+/// File name extensions a folder walk picks up (the content decides how a file is read; see `io::decode`).
+const SOUND_EXTENSIONS: [&str; 10] = ["wav", "wave", "flac", "aif", "aiff", "aifc", "ogg", "oga", "mp3", "caf"];
+
+fn is_sound(p: &Path) -> bool {
+    p.extension().is_some_and(|e| SOUND_EXTENSIONS.iter().any(|s| e.eq_ignore_ascii_case(s)))
 }
 
 fn collect(dir: &Path, base: &Path, recursive: bool, out: &mut Vec<(PathBuf, PathBuf)>) -> Result<(), Failure> {
@@ -165,7 +168,7 @@ fn collect(dir: &Path, base: &Path, recursive: bool, out: &mut Vec<(PathBuf, Pat
             if recursive {
                 collect(&p, base, recursive, out)?;
             }
-        } else if is_wav(&p) {
+        } else if is_sound(&p) {
             let rel = p.parent().and_then(|d| d.strip_prefix(base).ok()).unwrap_or(Path::new("")).to_path_buf();
             out.push((p, rel));
         }
@@ -222,7 +225,10 @@ fn plan(args: &Args, preset: &Preset, export: &ExportFormat) -> Result<Vec<Job>,
         }
     }
     if found.is_empty() {
-        return Err(Failure::new(EXIT_INPUT, "no WAV files found in the inputs given"));
+        return Err(Failure::new(
+            EXIT_INPUT,
+            "no sound files (WAV, FLAC, AIFF, Ogg, MP3, CAF) found in the inputs given",
+        ));
     }
     let jobs: Vec<Job> = match (&args.output, &args.out_dir) {
         (Some(out), None) => {
@@ -330,10 +336,10 @@ struct Input {
 
 /// Reads a whole input file. Errors do not repeat the file's name: the line that reports them names it.
 fn read_input(path: &Path) -> Result<Input, Failure> {
-    let bytes = std::fs::read(path).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
-    let (clip, meta) = io::wav::read_with_meta(&bytes).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
-    let file_loop = meta.loops.first().map(|l| (l.start as u64, l.end as u64 + 1));
-    Ok(Input { clip, file_loop, warnings: meta.warnings })
+    // WAV through the project's own reader, FLAC, AIFF, Ogg, MP3 and CAF through symphonia; a loop in the file's own
+    // `smpl` (WAV) or `INST` (AIFF) chunk comes along.
+    let d = io::decode::read_any_file(path).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
+    Ok(Input { clip: d.clip, file_loop: d.file_loop, warnings: d.warnings })
 }
 
 /// Renders in blocks, from file to file, when nothing needs the whole sound at once: a byte-aligned WAV input

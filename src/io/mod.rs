@@ -1,6 +1,9 @@
-//! Reading and writing sound files: WAV (RIFF/WAVE), raw headerless samples, C source arrays.
+//! Reading and writing sound files: WAV (RIFF/WAVE), AIFF/AIFF-C, raw headerless samples, C source arrays.
 //!
 //! - [`wav`]: the WAV reader ([`wav::read`], [`wav::read_with_meta`]) and writer.
+//! - [`aiff`]: the AIFF/AIFF-C writer and its loop markers.
+//! - `decode` (native only): reads any supported file — WAV through [`wav`], FLAC, AIFF, Ogg Vorbis, MP3 and CAF
+//!   through `symphonia`.
 //! - [`ExportFormat`]: what a preset's `export` field says, with an exact [`file_size`](ExportFormat::file_size).
 //! - [`raw`], [`c_array`]: the headerless and C source writers.
 //!
@@ -8,13 +11,17 @@
 //! replacing NaN by 0 and ±Inf by ±1.0. So the output of an N-bit mid-tread quantizer is written without any further
 //! rounding.
 
+pub mod aiff;
 pub mod c_array;
 mod codecs;
+#[cfg(not(target_arch = "wasm32"))]
+pub mod decode;
 pub mod raw;
 pub mod wav;
 
 use crate::audio::{Clip, MAX_CHANNELS, MAX_SAMPLE_RATE};
 use crate::error::{Error, Result};
+pub use aiff::AiffEncoding;
 use serde::{Deserialize, Serialize};
 
 /// Sample encodings a WAV export can use.
@@ -126,6 +133,8 @@ pub enum CElement {
 /// - `{"type": "delta-bits", "step": 0.02, "leak": 1.0, "bit_order": "msb-first"}`: the packed bit stream of a 1-bit
 ///   delta modulator with that step and leak (one bit per sample, frames interleaved); see [`crate::codec::delta`].
 ///   The bits of a chain that ends with a `delta` stage of the same step and leak are exactly that stage's.
+/// - `{"type": "aiff", "encoding": "pcm-s16"}`; `encoding` is one of `pcm-s8 pcm-s16 pcm-s24 float32` (AIFF-C);
+///   see [`aiff`].
 /// - `{"type": "raw", "bits": 4, "signed": false, "endian": "little", "bit_order": "msb-first"}`; see [`raw`].
 /// - `{"type": "c-array", "element": "uint8", "name": "coin"}`; see [`c_array`].
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -140,6 +149,12 @@ pub enum ExportFormat {
         /// 4 × channels). `None`: 256 × channels (505 samples per block for IMA, 500 for Microsoft ADPCM).
         #[serde(default, skip_serializing_if = "Option::is_none")]
         block_align: Option<u32>,
+    },
+    /// An AIFF file (AIFF-C for float), loops in `MARK` + `INST`.
+    Aiff {
+        /// Sample encoding.
+        #[serde(default)]
+        encoding: AiffEncoding,
     },
     /// Headerless interleaved integer samples.
     Raw {
@@ -313,6 +328,7 @@ impl ExportFormat {
                     format!("only with encoding \"ima-adpcm\" or \"ms-adpcm\" (encoding is {:?})", e.name()),
                 )),
             },
+            ExportFormat::Aiff { .. } => Ok(()),
             ExportFormat::Raw { bits, .. } => raw::check_bits(*bits),
             ExportFormat::CArray { name, .. } => c_array::check_name(name),
             ExportFormat::Vox => Ok(()),
@@ -322,10 +338,12 @@ impl ExportFormat {
         }
     }
 
-    /// Usual file extension, without the dot: `wav`, `raw`, or `h` for a C array.
+    /// Usual file extension, without the dot: `wav`, `aif` (`aifc` for AIFF-C), `raw`, or `h` for a C array.
     pub fn extension(&self) -> &'static str {
         match self {
             ExportFormat::Wav { .. } => "wav",
+            ExportFormat::Aiff { encoding: AiffEncoding::Float32 } => "aifc",
+            ExportFormat::Aiff { .. } => "aif",
             ExportFormat::Raw { .. } | ExportFormat::DeltaBits { .. } => "raw",
             ExportFormat::Vox => "vox",
             ExportFormat::CArray { .. } => "h",
@@ -348,6 +366,7 @@ impl ExportFormat {
             ExportFormat::Wav { encoding, block_align } => {
                 wav::file_size_with(*encoding, block_align.map(|b| b as usize), frames, channels, meta).unwrap_or(0)
             }
+            ExportFormat::Aiff { encoding } => aiff::file_size_with(*encoding, frames, channels, meta),
             ExportFormat::Raw { bits, .. } => raw::file_size(*bits, frames, channels),
             ExportFormat::CArray { element, name } => c_array::file_size(*element, name, frames, channels, meta),
             ExportFormat::Vox if channels == 1 => crate::codec::vox::byte_len(frames as u64),
@@ -369,6 +388,7 @@ impl ExportFormat {
             ExportFormat::Wav { encoding, block_align } => {
                 wav::write_with(clip, *encoding, block_align.map(|b| b as usize), meta)
             }
+            ExportFormat::Aiff { encoding } => aiff::write_with(clip, *encoding, meta),
             ExportFormat::Raw { bits, signed, endian, bit_order } => raw::write(
                 clip,
                 &raw::RawLayout { bits: *bits, signed: *signed, endian: *endian, bit_order: *bit_order },
@@ -412,6 +432,13 @@ mod tests {
         let f: ExportFormat = serde_json::from_str(r#"{"type":"c-array","element":"uint8","name":"coin"}"#).unwrap();
         assert_eq!(f, ExportFormat::CArray { element: CElement::Uint8, name: "coin".into() });
         assert_eq!(serde_json::to_string(&f).unwrap(), r#"{"type":"c-array","element":"uint8","name":"coin"}"#);
+        for e in AiffEncoding::ALL {
+            let j = format!(r#"{{"type":"aiff","encoding":"{}"}}"#, e.name());
+            let f: ExportFormat = serde_json::from_str(&j).unwrap();
+            assert_eq!(f, ExportFormat::Aiff { encoding: e });
+            assert_eq!(serde_json::to_string(&f).unwrap(), j);
+        }
+        assert!(serde_json::from_str::<ExportFormat>(r#"{"type":"aiff","encoding":"pcm-u8"}"#).is_err());
         assert!(serde_json::from_str::<ExportFormat>(r#"{"type":"wav","encodin":"pcm-s16"}"#).is_err());
     }
 
