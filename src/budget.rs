@@ -113,6 +113,11 @@ pub fn hearing_stage(export: &ExportFormat, channels: usize) -> Result<Option<St
     })
 }
 
+/// Scores rank capped at 100 dB: beyond it (an exact copy reads +240 dB, 16-bit PCM about 98 dB) there is nothing to
+/// hear, so a bigger file that only scores higher above it is not better, and one such file cannot outweigh every
+/// other file of a folder in a summed score.
+pub const SCORE_CAP_DB: f64 = 100.0;
+
 /// Which figure ranks the candidates.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
 pub enum Score {
@@ -134,12 +139,17 @@ impl Score {
         }
     }
 
-    /// The score of a candidate.
+    /// The figure of a candidate, as reported.
     pub fn of(self, c: &Candidate) -> f64 {
         match self {
             Score::Sqnr => c.sqnr_db,
             Score::AWeighted => c.a_weighted_snr_db,
         }
+    }
+
+    /// The score that ranks a candidate: the figure, capped at [`SCORE_CAP_DB`].
+    pub fn rank(self, c: &Candidate) -> f64 {
+        self.of(c).min(SCORE_CAP_DB)
     }
 }
 
@@ -377,7 +387,7 @@ impl Limit {
     }
 }
 
-/// Index of the best candidate within `limit` by `score`: the highest score; ties go to fewer bytes, then to the
+/// Index of the best candidate within `limit` by `score` ([`Score::rank`]): the highest score; ties go to fewer bytes, then to the
 /// earlier candidate. `None` when nothing fits.
 pub fn pick(candidates: &[Candidate], score: Score, limit: Limit) -> Option<usize> {
     let mut best: Option<usize> = None;
@@ -388,7 +398,7 @@ pub fn pick(candidates: &[Candidate], score: Score, limit: Limit) -> Option<usiz
         best = match best {
             None => Some(i),
             Some(b) => {
-                let (sb, sc) = (score.of(&candidates[b]), score.of(c));
+                let (sb, sc) = (score.rank(&candidates[b]), score.rank(c));
                 if sc > sb || (sc == sb && c.bytes < candidates[b].bytes) {
                     Some(i)
                 } else {
@@ -405,9 +415,9 @@ pub fn pick(candidates: &[Candidate], score: Score, limit: Limit) -> Option<usiz
 pub fn mark_pareto(candidates: &mut [Candidate], score: Score) {
     let n = candidates.len();
     for i in 0..n {
-        let (bi, si) = (candidates[i].bytes, score.of(&candidates[i]));
+        let (bi, si) = (candidates[i].bytes, score.rank(&candidates[i]));
         let dominated = (0..n).any(|j| {
-            let (bj, sj) = (candidates[j].bytes, score.of(&candidates[j]));
+            let (bj, sj) = (candidates[j].bytes, score.rank(&candidates[j]));
             j != i && bj <= bi && sj >= si && (bj < bi || sj > si || j < i)
         });
         candidates[i].pareto = !dominated;

@@ -2,7 +2,7 @@
 //! within a byte or bit-rate budget; for a folder, one total shared among its files. Candidates are measured in
 //! parallel (rayon); the figures and the pick do not depend on the number of threads.
 
-use super::{load_preset, read_file, write_atomic, Failure, EXIT_INPUT, EXIT_USAGE};
+use super::{load_preset, read_file, write_atomic, Failure, EXIT_INPUT, EXIT_OUTPUT, EXIT_USAGE};
 use rayon::prelude::*;
 use serde::Serialize;
 use stairstep::budget::{self, Allocation, Budget, Candidate, Limit, Score};
@@ -19,7 +19,8 @@ not change the bytes.
 Figures: bytes (exactly what `stairstep render` writes with the candidate's preset), bytes per second and kbit/s over
 the sound's duration, SQNR, A-weighted SNR (IEC 61672-1 weighting A applied to the original and to the error), the
 bandwidth kept (clean mode's cutoff, else the Nyquist frequency), clipped samples, and whether the candidate is on the
-size-quality Pareto front. The pick is the best score within the limit (ties: fewer bytes).
+size-quality Pareto front. The pick is the best score within the limit (ties: fewer bytes); scores rank capped at
+100 dB (an exact copy reads 240 dB), so a bigger file that only scores higher beyond that is not preferred.
 
 A folder (--recursive DIR --total-bytes N): the choice with the best summed score, found exactly by combining the files
 one at a time and keeping only partial sums that nothing beats on both bytes and score; for folders too large for that,
@@ -333,9 +334,11 @@ fn svg_plot(candidates: &[Candidate], pick: Option<usize>, score: Score, limit: 
         }
         if c.pareto {
             s += &format!(
-                "<text x=\"{:.1}\" y=\"{:.1}\" font-size=\"10\" fill=\"#155\">{} {}{}</text>\n",
-                x + 6.0,
+                "<text x=\"{:.1}\" y=\"{:.1}\" font-size=\"10\" fill=\"#155\" text-anchor=\"{}\">{} {}{}</text>\n",
+                // Labels in the right quarter go to the left of their point, so they stay inside the plot.
+                if x > ml + 0.75 * pw { x - 6.0 } else { x + 6.0 },
                 y - 5.0,
+                if x > ml + 0.75 * pw { "end" } else { "start" },
                 c.rate_hz,
                 esc(&c.export_label),
                 if score.of(c) >= EXACT { " (exact copy)" } else { "" }
@@ -443,7 +446,7 @@ fn folder(args: &Args, preset: &Preset, score: Score, total: u64) -> Result<(), 
     let measured: Vec<(Vec<Candidate>, Vec<Skipped>)> =
         files.iter().map(|f| measure(f, preset, score).map(|m| (m.candidates, m.skipped))).collect::<Result<_, _>>()?;
     let options: Vec<budget::Options> =
-        measured.iter().map(|(c, _)| c.iter().map(|c| (c.bytes, score.of(c))).collect()).collect();
+        measured.iter().map(|(c, _)| c.iter().map(|c| (c.bytes, score.rank(c))).collect()).collect();
     let Allocation { method, choice, total_bytes, total_score, upper_bound } =
         budget::allocate(&options, total).map_err(|e| Failure::new(EXIT_USAGE, format!("--total-bytes: {e}")))?;
     if args.json {
@@ -473,11 +476,11 @@ fn folder(args: &Args, preset: &Preset, score: Score, total: u64) -> Result<(), 
                 p.rate_hz,
                 p.export_label,
                 fmt_bytes(p.bytes),
-                score.of(p)
+                score.rank(p)
             );
         }
         println!(
-            "total {} of {} bytes; summed {} {:.1} dB ({})",
+            "total {} of {} bytes; summed {} (each capped at 100 dB) {:.1} dB ({})",
             fmt_bytes(total_bytes),
             fmt_bytes(total),
             score.field(),
@@ -493,6 +496,12 @@ fn folder(args: &Args, preset: &Preset, score: Score, total: u64) -> Result<(), 
 
 pub fn run(args: Args) -> Result<(), Failure> {
     let score = parse_score(&args.score)?;
+    // Refuse before measuring, not after.
+    for path in args.plot.iter().chain(&args.save_preset) {
+        if !args.force && path.exists() {
+            return Err(Failure::new(EXIT_OUTPUT, format!("{}: exists (use --force to replace it)", path.display())));
+        }
+    }
     let preset = match &args.preset {
         Some(p) => load_preset(p)?,
         None => Preset { name: String::new(), ..Preset::default() },
