@@ -7,8 +7,8 @@
 //!
 //! # Candidates
 //! [`Budget::new`] takes a preset, the sound, and (as `stairstep render` does) the loop found in the input file. The
-//! candidate rates are the chain's own rate (the source rate when it has no active rate stage) and the
-//! [`RATE_LADDER`] at or below the source rate; the exports are [`export_choices`] plus the preset's own export. Each
+//! candidate rates are the chain's own rate (the source rate when it has no active rate stage), the source rate (no
+//! reduction) and the [`RATE_LADDER`] at or below the source rate; the exports are [`export_choices`] plus the preset's own export. Each
 //! candidate is a complete [`Preset`], the given one with:
 //!
 //! - **its rate**: the chain's active rate stage gets the candidate's `rate_hz` and keeps its mode (hold or clean);
@@ -245,7 +245,7 @@ impl<'a> Budget<'a> {
         self.duration_s
     }
 
-    /// Every candidate: each rate (the chain's own first, then the ladder, highest first) with each export (the
+    /// Every candidate: each rate (the chain's own first, then the source rate and the ladder, highest first) with each export (the
     /// preset's own first, then [`export_choices`]).
     pub fn candidates(&self) -> Result<Vec<CandidateSpec>> {
         let rate_at = self.preset.stages.iter().position(|s| !s.bypass && matches!(s.stage, StageSpec::Rate(_)));
@@ -254,7 +254,7 @@ impl<'a> Budget<'a> {
             _ => (self.source_rate, RateMode::Clean),
         };
         let mut rates = vec![own_rate];
-        for r in RATE_LADDER {
+        for r in std::iter::once(self.source_rate).chain(RATE_LADDER) {
             if r <= self.source_rate && !rates.contains(&r) {
                 rates.push(r);
             }

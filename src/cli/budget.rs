@@ -10,9 +10,9 @@ use stairstep::{io, Preset};
 use std::path::{Path, PathBuf};
 
 pub const HELP: &str = "\
-Candidates: the chain's own rate and 44100/32000/22050/16000/11025/8000 Hz (at or below the source rate), each with
-the preset's own export, WAV 16-bit, WAV 8-bit, WAV mu-law, WAV A-law, WAV IMA ADPCM, raw 8-bit and raw 4-bit. The
-chain's rate stage gets the candidate's rate and keeps its mode; a chain without one gets a clean (band-limited) rate
+Candidates: the chain's own rate, the source rate and 44100/32000/22050/16000/11025/8000 Hz (at or below the source
+rate), each with the preset's own export, WAV 16-bit, WAV 8-bit, WAV mu-law, WAV A-law, WAV IMA ADPCM, raw 8-bit and
+raw 4-bit. The chain's rate stage gets the candidate's rate and keeps its mode; a chain without one gets a clean (band-limited) rate
 stage first. The stage that makes the audition what the file holds is appended (quantizer, G.711 or ADPCM); it does
 not change the bytes.
 
