@@ -16,6 +16,8 @@
 //! 8. [`chain`]: the block engine (stages before and after the one rate stage, alignment, report);
 //! 9. [`render`] (a whole clip: preparation, chain, export loop points) and [`live`] (the chain for real-time
 //!    audition: FIFO, ramps, crossfaded rebuilds), plus [`demo`] sounds;
+//!    [`budget`] (every (rate, export) candidate rendered and measured, the best within a budget) sits on top of
+//!    [`render`];
 //! 10. the boundaries: `wasm` (wasm32 only, marshals for JS) and the `stairstep` binary's `cli`.
 //!
 //! Samples are `f32` with full scale ±1.0. See each module for units and conventions.
@@ -25,6 +27,7 @@
 
 pub mod analysis;
 pub mod audio;
+pub mod budget;
 pub mod chain;
 pub mod codec;
 pub mod db;

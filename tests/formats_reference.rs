@@ -10,8 +10,8 @@ mod common;
 use serde_json::Value;
 use stairstep::io::decode::{read_any, Limits, WAV_READER};
 use stairstep::io::{AiffEncoding, ExportFormat, ExportMeta, SampleLoop};
-use stairstep::sample::pcm_code;
 use stairstep::rng::Pcg32;
+use stairstep::sample::pcm_code;
 use stairstep::Clip;
 use std::path::Path;
 

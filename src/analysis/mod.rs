@@ -1,4 +1,4 @@
-//! Measurements: levels, error and SQNR, spectra, drawing envelopes.
+//! Measurements: levels, error and SQNR, spectra, drawing envelopes, frequency weighting A.
 //!
 //! # Conventions
 //! - **dBFS**: a sine whose peaks touch full scale (±1.0) reads 0 dBFS, both as peak and as RMS (the RMS value is
@@ -10,6 +10,7 @@ pub mod levels;
 pub mod loudness;
 pub mod spectrum;
 pub mod sweep;
+pub mod weighting;
 
 pub use levels::{envelope, sqnr_db, Levels};
 pub use spectrum::{SpectrumAnalyzer, Window};

@@ -1,6 +1,7 @@
 //! Command-line interface (native only). One file per command; shared helpers here.
 
 mod analyze;
+mod budget;
 mod manifest;
 mod render;
 mod serve;
@@ -45,6 +46,9 @@ enum Command {
     /// Measured SQNR against word length (1 to 24 bits) beside the theory lines.
     #[command(after_help = analyze::SWEEP_HELP)]
     Sweep(analyze::SweepArgs),
+    /// Every (rate, export) candidate measured side by side: bytes, SQNR, A-weighted SNR; the best within a budget.
+    #[command(after_help = budget::HELP)]
+    Budget(budget::Args),
     /// Write a built-in demo sound as a WAV file.
     #[command(after_help = "Demos: chime-loop, drum-hit, pad, sweep, tone (all synthesised, 48 kHz).\n\n\
         Examples:\n  stairstep demo -o chime.wav\n  stairstep demo tone -o tone.wav")]
@@ -196,6 +200,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
         Command::Render(args) => render::run(args),
         Command::Analyze(args) => analyze::analyze(args),
         Command::Sweep(args) => analyze::sweep(args),
+        Command::Budget(args) => budget::run(args),
         Command::Demo { name, output, force } => {
             let clip = demo::demo(&name).map_err(|e| Failure::new(EXIT_USAGE, e.to_string()))?;
             let bytes =
