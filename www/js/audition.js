@@ -145,6 +145,8 @@ function fetchError() {
     const asked = state.output;
     errorFetch = call('error')
       .then((msg) => { if (state.output === asked) state.errorSignal = msg.channels; })
+      // Nothing rendered in the worker yet (a new sound is loading): the next render brings it.
+      .catch(() => {})
       .finally(() => { errorFetch = null; });
   }
   return errorFetch;

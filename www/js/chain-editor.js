@@ -103,9 +103,15 @@ export function markStageErrors(message) {
   return text;
 }
 
+// The add-stage menu lists the kinds of the core's schema (filled once the engine has started).
+export function fillAddMenu() {
+  const add = $('add-kind');
+  add.replaceChildren(...Object.entries(STAGES).map(([k, s]) => el('option', { value: k }, s.label)));
+}
+
 export function setupStageTools() {
   const add = $('add-kind');
-  for (const [k, s] of Object.entries(STAGES)) add.append(el('option', { value: k }, s.label));
+  fillAddMenu();
   $('add-stage').onclick = () => {
     const kind = add.value;
     const stage = { kind };

@@ -6,7 +6,7 @@ import { $, el, setStatus } from './util.js';
 import { state } from './state.js';
 import { call, wasmBytes } from './worker-client.js';
 import { hooks, loadSource } from './session.js';
-import { renderChain, markStageErrors, setupStageTools } from './chain-editor.js';
+import { renderChain, markStageErrors, setupStageTools, fillAddMenu } from './chain-editor.js';
 import { useCoreSchema } from './schema.js';
 import { renderPrep, drawPrepReport } from './prep-panel.js';
 import { renderExport, drawBudget, doExport } from './export.js';
@@ -151,6 +151,7 @@ async function main() {
   setStatus('Starting the engine…');
   const ready = await call('init', { wasm: wasmBytes.buffer }, [wasmBytes.buffer]);
   useCoreSchema(ready.schema);
+  fillAddMenu();
   renderChain();
   setBuiltinPresets(ready.presets);
   const demo = $('demo');

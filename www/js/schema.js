@@ -40,9 +40,23 @@ export const EXPORT_TYPES = {
     label: 'WAV',
     fields: [
       { key: 'encoding', label: 'Encoding',
-        ...E(['pcm-u8', 'pcm-s16', 'pcm-s24', 'pcm-s32', 'float32', 'mulaw', 'alaw', 'ima-adpcm']), def: 'pcm-s16' },
+        ...E(['pcm-u8', 'pcm-s16', 'pcm-s24', 'pcm-s32', 'float32', 'mulaw', 'alaw', 'ima-adpcm', 'ms-adpcm', 'g721']),
+        def: 'pcm-s16' },
       { key: 'block_align', label: 'Block align', type: 'int', min: 8, max: 65532, step: 4, unit: 'B', def: null,
-        placeholder: '256 × ch', when: (s) => s.encoding === 'ima-adpcm' },
+        placeholder: '256 × ch', when: (s) => s.encoding === 'ima-adpcm' || s.encoding === 'ms-adpcm' },
+    ],
+  },
+  aiff: {
+    label: 'AIFF',
+    fields: [{ key: 'encoding', label: 'Encoding', ...E(['pcm-s8', 'pcm-s16', 'pcm-s24', 'float32']), def: 'pcm-s16' }],
+  },
+  vox: { label: 'VOX (Dialogic ADPCM, mono)', fields: [] },
+  'delta-bits': {
+    label: '1-bit delta stream',
+    fields: [
+      { key: 'step', label: 'Step', type: 'float', min: 0.0001, max: 0.5, step: 0.001, unit: '', def: 0.02 },
+      { key: 'leak', label: 'Leak', type: 'float', min: 0.5, max: 1, step: 0.001, unit: '', def: 1 },
+      { key: 'bit_order', label: 'Bit order', ...E(['msb-first', 'lsb-first']), def: 'msb-first' },
     ],
   },
   raw: {
