@@ -8,6 +8,7 @@ use super::{load_preset, read_file, write_atomic, write_atomic_with, Failure, EX
 use indicatif::{ProgressBar, ProgressStyle};
 use rayon::prelude::*;
 use serde::Serialize;
+use stairstep::chain::StageReport;
 use stairstep::io::ExportFormat;
 use stairstep::{io, render, Preset};
 use std::collections::HashMap;
@@ -89,6 +90,9 @@ struct Outcome {
     /// Loop points written, at the export rate (inclusive end, as in `smpl`).
     #[serde(skip_serializing_if = "Option::is_none")]
     loop_frames: Option<(u32, u32)>,
+    /// What each stage did on its own (the render report's `stages`: kind, SQNR, clipped samples, codes used).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    stages: Option<Vec<StageReport>>,
     /// Exit code this failure maps to (0 when ok).
     #[serde(skip)]
     code: u8,
@@ -203,6 +207,7 @@ struct Measured {
     sqnr_db: f64,
     bytes: u64,
     loop_frames: Option<(u32, u32)>,
+    stages: Vec<StageReport>,
 }
 
 /// Renders in blocks, from file to file, when nothing needs the whole sound at once: a byte-aligned WAV input
@@ -276,6 +281,7 @@ fn render_streaming(
         sqnr_db: r.sqnr_db,
         bytes,
         loop_frames: None,
+        stages: r.stages,
     }))
 }
 
@@ -300,6 +306,7 @@ fn render_in_memory(
         sqnr_db: r.report.sqnr_db,
         bytes: bytes.len() as u64,
         loop_frames: r.export_meta.loops.first().map(|l| (l.start, l.end)),
+        stages: r.report.stages.clone(),
     };
     Ok((m, meta.warnings))
 }
@@ -323,6 +330,7 @@ fn render_one(
         bytes: None,
         warnings: Vec::new(),
         loop_frames: None,
+        stages: None,
         code: 0,
     };
     let result = (|| -> Result<(), Failure> {
@@ -347,6 +355,7 @@ fn render_one(
         o.sqnr_db = Some(m.sqnr_db);
         o.bytes = Some(m.bytes);
         o.loop_frames = m.loop_frames;
+        o.stages = Some(m.stages);
         Ok(())
     })();
     match result {
