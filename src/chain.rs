@@ -158,16 +158,15 @@ struct StageStats {
     kind: String,
     active: bool,
     after_rate: bool,
-    /// The rate stage's SQNR (its samples pair up through queues, see [`RateTap`]).
-    sqnr: SqnrAcc,
-    /// A rate-keeping stage's SQNR sums (in place, block by block).
+    /// The stage's SQNR sums (a rate-keeping stage: in place, block by block; the rate stage: as its samples pair
+    /// up through the queues of [`RateTap`]).
     error: ErrorSums,
     code_space: Option<u64>,
     /// The codes seen; `None` when the stage's codes are not counted.
     used: Option<CodeSet>,
 }
 
-/// Sums of input² and (output − input)² for a rate-keeping stage's SQNR, block by block: each block in eight `f32`
+/// Sums of input² and (output − input)² for a stage's SQNR, block by block: each block in eight `f32`
 /// lanes ([`sum_sq_diff`], loops the compiler vectorizes; the chain runs them on every stage's every block), added to
 /// `f64` totals at the end of the block. A block is at most a few thousand samples, so the `f32` partial sums lose nothing a dB
 /// figure shows (relative error below 10⁻⁴). Fixed by the sequence of blocks, so the same on every target.
@@ -475,7 +474,6 @@ impl Chain {
                         .unwrap_or_default(),
                     active: !slot.bypass,
                     after_rate: rate_index.is_some_and(|r| i >= r),
-                    sqnr: SqnrAcc::default(),
                     error: ErrorSums::default(),
                     code_space,
                     used: tracked.map(CodeSet::new),
@@ -607,10 +605,7 @@ impl Chain {
                     kind: s.kind.clone(),
                     active: s.active,
                     rate_hz: if s.after_rate { self.export_rate } else { self.source_rate },
-                    sqnr_db: st.and_then(|s| match &self.lanes[0].nodes[i] {
-                        Some(Node::Rate { .. }) => s.sqnr.db_if_error(),
-                        _ => s.error.db(),
-                    }),
+                    sqnr_db: st.and_then(|s| s.error.db()),
                     clipped: clipped_per_stage[i],
                     codes_used: st.and_then(|s| s.used.as_ref()).map(CodeSet::count),
                     code_space: s.code_space,
@@ -775,7 +770,7 @@ impl Lane {
             }
             let n = tap.input.len().min(tap.output.len());
             let (xs, ys) = (tap.input.make_contiguous(), tap.output.make_contiguous());
-            stats[r].sqnr.push_slices(&xs[..n], &ys[..n]);
+            stats[r].error.push(&xs[..n], &ys[..n]);
             tap.input.drain(..n);
             tap.output.drain(..n);
         }
