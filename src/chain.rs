@@ -12,6 +12,14 @@
 //! of the rate stage (clean mode) is removed, so the export starts at time 0 and has exactly
 //! `⌈frames·export_rate/source_rate⌉` frames, and the audition lines up sample for sample with the input and has
 //! exactly its length. The error signal is audition − input; the report's SQNR is measured on it.
+//!
+//! # Per-stage figures
+//! Besides the whole chain's SQNR, the report says what each stage alone does ([`StageReport`]): its output against
+//! its own input, so a stage's figure does not depend on what the stages before it did. A stage before the rate
+//! stage is measured at the source rate, a stage after it at the export rate (in place, sample for sample). The rate
+//! stage's own error is its output brought back to the source rate by a second expander (or, when no active stage
+//! follows it, the audition signal itself) against its input. This accounting only reads the signal, so it never
+//! changes a sample; [`Chain::without_stage_stats`] turns it off where nothing reads it (the live chain).
 
 use crate::analysis::levels::{LevelsAcc, SqnrAcc};
 use crate::analysis::Levels;
@@ -35,6 +43,35 @@ enum Node {
     /// Changes the rate: the reducer, and the expander that brings the final signal back for audition.
     Rate { reducer: RateReducer, expander: RateExpander },
 }
+
+/// What one stage of the preset did, in a [`RenderReport`]. The units: dB, sample counts (all channels), Hz.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct StageReport {
+    /// The stage's `kind`, as in the preset (`"quantize"`, `"rate"`, …).
+    pub kind: String,
+    /// False when the stage is bypassed (then every figure below is empty or 0).
+    pub active: bool,
+    /// The rate this stage's output runs at, in Hz: the source rate before the rate stage, the export rate from it
+    /// on. The stage's figures are measured at this rate, except the rate stage's own SQNR (at the source rate).
+    pub rate_hz: u32,
+    /// This stage's SQNR in dB: the power of its input over the power of (its output − its input), all channels
+    /// (the gain stage: against its input times its gain, so only the overflow rule counts as error; the rate
+    /// stage: its output brought back to the source rate against its input). `None` when the stage changed no
+    /// sample (bypassed, or exact on this input) or when the chain was built without per-stage figures.
+    pub sqnr_db: Option<f64>,
+    /// Samples this stage clipped (as in `clipped_per_stage`).
+    pub clipped: u64,
+    /// For quantizers (uniform, G.711, compand, minifloat): how many distinct codes of their word the output used,
+    /// all channels together (see each stage's `code_indices` for what a code is). `None` for other stages, or when
+    /// the word has more than [`MAX_TRACKED_CODES`] codes.
+    pub codes_used: Option<u64>,
+    /// For quantizers: the number of codes of the word, `2^B` for a `B`-bit word (a uniform quantizer with `levels`
+    /// set: that many levels).
+    pub code_space: Option<u64>,
+}
+
+/// Largest code space whose codes a chain counts (a bit per code: 2 MiB at 2^24, a 24-bit quantizer's word).
+pub const MAX_TRACKED_CODES: u64 = 1 << 24;
 
 /// What a render reports besides the samples.
 #[derive(Debug, Clone, Serialize)]
@@ -69,6 +106,8 @@ pub struct RenderReport {
     pub theory_sqnr_db: Option<f64>,
     /// Why there is no theory figure, when there is none.
     pub theory_note: Option<String>,
+    /// What each stage did on its own, in chain order (bypassed stages included, marked inactive).
+    pub stages: Vec<StageReport>,
 }
 
 /// A whole clip run through a chain ([`Chain::process_clip`]).
@@ -113,6 +152,144 @@ impl Aligner {
     }
 }
 
+/// One stage's running figures, shared by every channel (channels push in turn, so the sums are fixed by the block
+/// order, like the chain's own SQNR).
+struct StageStats {
+    kind: String,
+    active: bool,
+    after_rate: bool,
+    /// The stage's SQNR sums (a rate-keeping stage: in place, block by block; the rate stage: as its samples pair
+    /// up through the queues of [`RateTap`]).
+    error: ErrorSums,
+    code_space: Option<u64>,
+    /// The codes seen; `None` when the stage's codes are not counted.
+    used: Option<CodeSet>,
+}
+
+/// Sums of input² and (output − input)² for a stage's SQNR, block by block: each block in eight `f32`
+/// lanes ([`sum_sq_diff`], loops the compiler vectorizes; the chain runs them on every stage's every block), added to
+/// `f64` totals at the end of the block. A block is at most a few thousand samples, so the `f32` partial sums lose nothing a dB
+/// figure shows (relative error below 10⁻⁴). Fixed by the sequence of blocks, so the same on every target.
+#[derive(Debug, Clone, Copy, Default)]
+struct ErrorSums {
+    signal: f64,
+    error: f64,
+}
+
+impl ErrorSums {
+    fn push(&mut self, reference: &[f32], output: &[f32]) {
+        let n = reference.len().min(output.len());
+        self.signal += sum_sq_diff(&reference[..n], None);
+        self.error += sum_sq_diff(&reference[..n], Some(&output[..n]));
+    }
+
+    /// The SQNR in dB, or `None` when nothing differed (or a sum is not finite).
+    fn db(&self) -> Option<f64> {
+        (self.error > 0.0 && self.error.is_finite() && self.signal.is_finite())
+            .then(|| crate::db::power_db(self.signal / self.error))
+    }
+}
+
+/// `Σ (y − x)²` (or `Σ x²` without `y`) in eight `f32` lanes, as two groups of four (the form the compiler turns into
+/// two SIMD accumulators), plus a scalar tail; the partial sums are added in `f64`.
+#[inline]
+fn sum_sq_diff(x: &[f32], y: Option<&[f32]>) -> f64 {
+    let (mut s0, mut s1) = ([0f32; 4], [0f32; 4]);
+    let mut tail = 0f32;
+    let mut xc = x.chunks_exact(8);
+    match y {
+        None => {
+            for a in &mut xc {
+                let (a0, a1) = a.split_at(4);
+                for i in 0..4 {
+                    s0[i] += a0[i] * a0[i];
+                }
+                for i in 0..4 {
+                    s1[i] += a1[i] * a1[i];
+                }
+            }
+            for &a in xc.remainder() {
+                tail += a * a;
+            }
+        }
+        Some(y) => {
+            let mut yc = y.chunks_exact(8);
+            for (a, b) in (&mut xc).zip(&mut yc) {
+                let ((a0, a1), (b0, b1)) = (a.split_at(4), b.split_at(4));
+                for i in 0..4 {
+                    let d = b0[i] - a0[i];
+                    s0[i] += d * d;
+                }
+                for i in 0..4 {
+                    let d = b1[i] - a1[i];
+                    s1[i] += d * d;
+                }
+            }
+            for (&a, &b) in xc.remainder().iter().zip(yc.remainder()) {
+                tail += (b - a) * (b - a);
+            }
+        }
+    }
+    s0.iter().chain(&s1).map(|&v| v as f64).sum::<f64>() + tail as f64
+}
+
+/// The set of codes a stage emitted: a byte per code for small words (a plain store per sample, no dependency
+/// between samples), a bit per code for large ones (2 MiB at 2^24).
+enum CodeSet {
+    Bytes(Vec<u8>),
+    Bits(Vec<u64>),
+}
+
+/// Largest code space counted with a byte per code.
+const BYTE_CODES: u64 = 1 << 16;
+
+impl CodeSet {
+    fn new(space: u64) -> Self {
+        if space <= BYTE_CODES {
+            CodeSet::Bytes(vec![0; space as usize])
+        } else {
+            CodeSet::Bits(vec![0; space.div_ceil(64) as usize])
+        }
+    }
+
+    fn mark(&mut self, codes: &[u32]) {
+        match self {
+            CodeSet::Bytes(seen) => {
+                for &c in codes {
+                    if let Some(s) = seen.get_mut(c as usize) {
+                        *s = 1;
+                    }
+                }
+            }
+            CodeSet::Bits(words) => {
+                for &c in codes {
+                    if let Some(w) = words.get_mut((c >> 6) as usize) {
+                        *w |= 1u64 << (c & 63);
+                    }
+                }
+            }
+        }
+    }
+
+    fn count(&self) -> u64 {
+        match self {
+            CodeSet::Bytes(seen) => seen.iter().map(|&s| s as u64).sum(),
+            CodeSet::Bits(words) => words.iter().map(|w| w.count_ones() as u64).sum(),
+        }
+    }
+}
+
+/// Per-channel state for the rate stage's own figure: its input, and its output brought back to the source rate.
+struct RateTap {
+    /// A second expander for the rate stage's output before the stages after it; `None` when no active stage
+    /// follows the rate stage, and the audition signal is that output.
+    expander: Option<RateExpander>,
+    align: Aligner,
+    expanded: Vec<f32>,
+    input: VecDeque<f32>,
+    output: VecDeque<f32>,
+}
+
 /// One channel's stages and buffers.
 struct Lane {
     nodes: Vec<Option<Node>>,
@@ -141,6 +318,11 @@ struct Lane {
     /// of a span, a filter behind it), paired in order for the SQNR.
     pending_input: VecDeque<f32>,
     pending_audition: VecDeque<f32>,
+    /// Scratch for per-stage figures: a stage's input (times its reference gain) and its output's code indices.
+    before: Vec<f32>,
+    codes: Vec<u32>,
+    /// The rate stage's figure, when per-stage figures are on and a rate stage is active.
+    rate_tap: Option<RateTap>,
 }
 
 /// Where [`Chain::process_block`] puts its output; the caller clears it between blocks as it likes.
@@ -176,6 +358,10 @@ pub struct Chain {
     input_levels: LevelsAcc,
     output_levels: LevelsAcc,
     sqnr: SqnrAcc,
+    /// Per-stage figures, in preset order.
+    stats: Vec<StageStats>,
+    /// Whether the per-stage figures are accounted ([`Chain::without_stage_stats`] turns them off).
+    stage_stats: bool,
 }
 
 impl Chain {
@@ -217,6 +403,7 @@ impl Chain {
         }
         let mut export_rate = sample_rate;
         let mut lanes = Vec::with_capacity(channels);
+        let rate_index = active_rates.first().copied();
         for ch in 0..channels {
             let mut nodes = Vec::with_capacity(preset.stages.len());
             let mut rate_at = None;
@@ -265,8 +452,31 @@ impl Chain {
                 }
                 _ => None,
             };
-            let scratch = max_reduced.max(BLOCK);
             let stage_mixes = preset.stages.iter().any(|s| !s.bypass && s.mix != 1.0);
+            let queue = 2 * (BLOCK + max_expanded) + audition_delay;
+            // The rate stage's own figure: a second expander only when an active stage follows the rate stage.
+            let rate_tap = match rate_at.and_then(|i| preset.stages.get(i)) {
+                Some(slot) => {
+                    let followed = preset.stages[rate_at.unwrap_or(0) + 1..].iter().any(|s| !s.bypass);
+                    let expander = match (&slot.stage, followed) {
+                        (StageSpec::Rate(p), true) => Some(RateExpander::new(p, sample_rate, BLOCK)?),
+                        _ => None,
+                    };
+                    Some(RateTap {
+                        expander,
+                        align: Aligner::new(audition_delay, frames),
+                        expanded: vec![0.0; if followed { max_expanded } else { 0 }],
+                        input: VecDeque::with_capacity(queue),
+                        output: VecDeque::with_capacity(queue),
+                    })
+                }
+                None => None,
+            };
+            let tracks_codes = nodes.iter().flatten().any(|n| match n {
+                Node::Plain { stage: s, .. } => s.code_space().is_some_and(|c| c <= MAX_TRACKED_CODES),
+                Node::Rate { .. } => false,
+            });
+            let scratch = max_reduced.max(BLOCK);
             lanes.push(Lane {
                 nodes,
                 rate_at,
@@ -285,10 +495,37 @@ impl Chain {
                 stage_dry: Vec::with_capacity(if stage_mixes { scratch } else { 0 }),
                 // Enough for the rate stage's largest lead or lag (a hold span; clean mode's FFT blocks), so a
                 // stream never grows them.
-                pending_input: VecDeque::with_capacity(2 * (BLOCK + max_expanded) + audition_delay),
-                pending_audition: VecDeque::with_capacity(2 * (BLOCK + max_expanded) + audition_delay),
+                pending_input: VecDeque::with_capacity(queue),
+                pending_audition: VecDeque::with_capacity(queue),
+                before: Vec::with_capacity(scratch),
+                codes: vec![0; if tracks_codes { scratch } else { 0 }],
+                rate_tap,
             });
         }
+        let stats = preset
+            .stages
+            .iter()
+            .enumerate()
+            .map(|(i, slot)| {
+                let code_space = match &lanes[0].nodes[i] {
+                    Some(Node::Plain { stage: s, .. }) => s.code_space(),
+                    _ => None,
+                };
+                let tracked = code_space.filter(|&c| c <= MAX_TRACKED_CODES);
+                StageStats {
+                    // The preset's own name for the kind (its serde tag), so a new stage kind needs nothing here.
+                    kind: serde_json::to_value(&slot.stage)
+                        .ok()
+                        .and_then(|v| v.get("kind").and_then(|k| k.as_str()).map(str::to_string))
+                        .unwrap_or_default(),
+                    active: !slot.bypass,
+                    after_rate: rate_index.is_some_and(|r| i >= r),
+                    error: ErrorSums::default(),
+                    code_space,
+                    used: tracked.map(CodeSet::new),
+                }
+            })
+            .collect();
         let latency = match lanes[0].rate_at.and_then(|i| lanes[0].nodes[i].as_ref()) {
             Some(Node::Rate { expander, .. }) => expander.delay(),
             _ => 0,
@@ -304,7 +541,22 @@ impl Chain {
             input_levels: LevelsAcc::default(),
             output_levels: LevelsAcc::default(),
             sqnr: SqnrAcc::default(),
+            stats,
+            stage_stats: true,
         })
+    }
+
+    /// The same chain without per-stage figures (the report's `stages` then has no SQNR and no codes): for callers
+    /// that never read them, such as the live chain, which then does only the work that makes its output. The output
+    /// samples are the same either way.
+    pub fn without_stage_stats(mut self) -> Self {
+        self.stage_stats = false;
+        for lane in &mut self.lanes {
+            lane.rate_tap = None;
+            lane.codes = Vec::new();
+            lane.before = Vec::new();
+        }
+        self
     }
 
     /// Sample rate of the export.
@@ -336,8 +588,14 @@ impl Chain {
             lane.work.extend(x.iter().map(|&s| sanitize(s)));
             self.input_levels.push(&lane.work);
             lane.pending_input.extend(&lane.work);
-            lane.run(false);
-            lane.emit(ch, out, &mut self.output_levels, &mut self.sqnr);
+            lane.run(false, self.stage_stats.then_some(&mut self.stats[..]));
+            lane.emit(
+                ch,
+                out,
+                &mut self.output_levels,
+                &mut self.sqnr,
+                self.stage_stats.then_some(&mut self.stats[..]),
+            );
         }
     }
 
@@ -346,13 +604,25 @@ impl Chain {
     pub fn finish(&mut self, out: &mut ChainOutput) -> RenderReport {
         for (ch, lane) in self.lanes.iter_mut().enumerate() {
             lane.work.clear();
-            lane.run(true);
+            lane.run(true, self.stage_stats.then_some(&mut self.stats[..]));
             let (e, a) = (lane.export_align.missing(), lane.audition_align.missing());
             lane.export_buf.extend(std::iter::repeat_n(0.0, e));
             lane.export_align.emitted += e;
             lane.audition_buf.extend(std::iter::repeat_n(0.0, a));
             lane.audition_align.emitted += a;
-            lane.emit(ch, out, &mut self.output_levels, &mut self.sqnr);
+            if let Some(tap) = lane.rate_tap.as_mut().filter(|t| t.expander.is_some()) {
+                // Padded like the audition, so the rate stage's figure covers the same samples.
+                let m = tap.align.missing();
+                tap.output.extend(std::iter::repeat_n(0.0, m));
+                tap.align.emitted += m;
+            }
+            lane.emit(
+                ch,
+                out,
+                &mut self.output_levels,
+                &mut self.sqnr,
+                self.stage_stats.then_some(&mut self.stats[..]),
+            );
         }
         self.report()
     }
@@ -372,6 +642,22 @@ impl Chain {
             .collect();
         let clipped = clipped_per_stage.iter().sum();
         let input = self.input_levels.finish();
+        let stage_reports = (0..stages)
+            .map(|i| {
+                let s = &self.stats[i];
+                // The figures, when they were accounted.
+                let st = (self.stage_stats && s.active).then_some(s);
+                StageReport {
+                    kind: s.kind.clone(),
+                    active: s.active,
+                    rate_hz: if s.after_rate { self.export_rate } else { self.source_rate },
+                    sqnr_db: st.and_then(|s| s.error.db()),
+                    clipped: clipped_per_stage[i],
+                    codes_used: st.and_then(|s| s.used.as_ref()).map(CodeSet::count),
+                    code_space: s.code_space,
+                }
+            })
+            .collect();
         let (theory_sqnr_db, theory_note) = self.theory(&input, clipped);
         RenderReport {
             source_rate: self.source_rate,
@@ -388,6 +674,7 @@ impl Chain {
             sqnr_db: self.sqnr.db(),
             theory_sqnr_db,
             theory_note,
+            stages: stage_reports,
         }
     }
 
@@ -455,7 +742,9 @@ impl Chain {
 impl Lane {
     /// Runs the block in `work` through the stages (or, `flushing`, empties the rate stage's filters), leaving this
     /// call's aligned export samples in `export_buf` and audition samples in `audition_buf`.
-    fn run(&mut self, flushing: bool) {
+    ///
+    /// With `stats`, each stage's figures are accounted on the way (see [`run_stage`]).
+    fn run(&mut self, flushing: bool, mut stats: Option<&mut [StageStats]>) {
         self.export_buf.clear();
         self.audition_buf.clear();
         if self.mix != 1.0 {
@@ -463,7 +752,20 @@ impl Lane {
             self.dry.extend_from_slice(&self.work);
         }
         let Some(r) = self.rate_at else {
-            run_stages(&mut self.nodes, &mut self.work, &mut self.stage_dry);
+            for (i, node) in self.nodes.iter_mut().enumerate() {
+                if let Some(Node::Plain { stage, mix }) = node {
+                    let st = stats.as_deref_mut().map(|st| &mut st[i]);
+                    run_node(
+                        stage.as_mut(),
+                        *mix,
+                        &mut self.work,
+                        st,
+                        &mut self.before,
+                        &mut self.codes,
+                        &mut self.stage_dry,
+                    );
+                }
+            }
             if self.mix != 1.0 {
                 blend(&mut self.work, &self.dry, self.mix);
             }
@@ -474,13 +776,51 @@ impl Lane {
         let (before, rest) = self.nodes.split_at_mut(r);
         let (rate, after) = rest.split_first_mut().expect("the rate node is in range");
         let Some(Node::Rate { reducer, expander }) = rate else { unreachable!("rate_at points at the rate node") };
-        run_stages(before, &mut self.work, &mut self.stage_dry);
+        for (i, node) in before.iter_mut().enumerate() {
+            if let Some(Node::Plain { stage, mix }) = node {
+                let st = stats.as_deref_mut().map(|st| &mut st[i]);
+                run_node(
+                    stage.as_mut(),
+                    *mix,
+                    &mut self.work,
+                    st,
+                    &mut self.before,
+                    &mut self.codes,
+                    &mut self.stage_dry,
+                );
+            }
+        }
+        if let Some(tap) = &mut self.rate_tap {
+            tap.input.extend(&self.work);
+        }
         let got =
             if flushing { reducer.flush(&mut self.reduced) } else { reducer.process(&self.work, &mut self.reduced) };
         // The export: the reduced stream without the reducer's latency, cut at the export length, then the stages
         // behind the rate stage, at the reduced rate.
         self.export_buf.extend_from_slice(self.export_align.take(&self.reduced[..got]));
-        run_stages(after, &mut self.export_buf, &mut self.stage_dry);
+        if let Some(RateTap { expander: Some(tap_expander), align, expanded, output, .. }) = &mut self.rate_tap {
+            // The rate stage's output alone, brought back to the source rate as the audition is (stats only).
+            let made = tap_expander.process(&self.export_buf, expanded);
+            output.extend(align.take(&expanded[..made]));
+            if flushing {
+                let made = tap_expander.flush(expanded);
+                output.extend(align.take(&expanded[..made]));
+            }
+        }
+        for (j, node) in after.iter_mut().enumerate() {
+            if let Some(Node::Plain { stage, mix }) = node {
+                let st = stats.as_deref_mut().map(|st| &mut st[r + 1 + j]);
+                run_node(
+                    stage.as_mut(),
+                    *mix,
+                    &mut self.export_buf,
+                    st,
+                    &mut self.before,
+                    &mut self.codes,
+                    &mut self.stage_dry,
+                );
+            }
+        }
         if let Some((dry_reducer, dry_align)) = &mut self.dry_rate {
             // The dry signal through the rate stage alone; same parameters, blocks and alignment as the wet one, so
             // the two line up sample for sample.
@@ -505,7 +845,25 @@ impl Lane {
 
     /// Appends this call's output to `out` and accounts it: output levels, and the SQNR against the input samples
     /// the audition samples line up with.
-    fn emit(&mut self, ch: usize, out: &mut ChainOutput, levels: &mut LevelsAcc, sqnr: &mut SqnrAcc) {
+    /// With `stats`, also pairs the rate stage's input with its output for its own figure.
+    fn emit(
+        &mut self,
+        ch: usize,
+        out: &mut ChainOutput,
+        levels: &mut LevelsAcc,
+        sqnr: &mut SqnrAcc,
+        stats: Option<&mut [StageStats]>,
+    ) {
+        if let (Some(tap), Some(stats), Some(r)) = (&mut self.rate_tap, stats, self.rate_at) {
+            if tap.expander.is_none() {
+                tap.output.extend(&self.audition_buf);
+            }
+            let n = tap.input.len().min(tap.output.len());
+            let (xs, ys) = (tap.input.make_contiguous(), tap.output.make_contiguous());
+            stats[r].error.push(&xs[..n], &ys[..n]);
+            tap.input.drain(..n);
+            tap.output.drain(..n);
+        }
         levels.push(&self.audition_buf);
         self.pending_audition.extend(&self.audition_buf);
         let n = self.pending_input.len().min(self.pending_audition.len());
@@ -519,21 +877,56 @@ impl Lane {
     }
 }
 
-/// Runs the rate-keeping stages of `nodes` over `buf` in order; a stage with a mix below 1 is blended with its own
-/// input (kept in `scratch`, whose capacity covers any block).
-fn run_stages(nodes: &mut [Option<Node>], buf: &mut [f32], scratch: &mut Vec<f32>) {
-    for node in nodes.iter_mut().flatten() {
-        if let Node::Plain { stage, mix } = node {
-            if *mix == 1.0 {
-                stage.process(buf);
-            } else {
-                scratch.clear();
-                scratch.extend_from_slice(buf);
-                stage.process(buf);
-                blend(buf, scratch, *mix);
-            }
+/// Runs one rate-keeping stage on `buf`; with `stats`, accounts its figures: its SQNR against a copy of its input
+/// (times its [`Stage::reference_gain`], rounded to `f32` as the stage rounds), and the code indices of its output.
+/// Only reads the output, so the samples are the same with or without `stats`.
+fn run_stage(
+    stage: &mut dyn Stage,
+    buf: &mut [f32],
+    stats: Option<&mut StageStats>,
+    before: &mut Vec<f32>,
+    codes: &mut [u32],
+) {
+    let Some(st) = stats else {
+        stage.process(buf);
+        return;
+    };
+    before.clear();
+    before.extend_from_slice(buf);
+    let g = stage.reference_gain();
+    if g != 1.0 {
+        before.iter_mut().for_each(|x| *x = (*x as f64 * g) as f32);
+    }
+    stage.process(buf);
+    st.error.push(before, buf);
+    if let (Some(used), false) = (&mut st.used, codes.is_empty()) {
+        // Blocks are at most the scratch's length (BLOCK, or the reducer's largest output after the rate stage).
+        for out in buf.chunks(codes.len()) {
+            let codes = &mut codes[..out.len()];
+            stage.code_indices(out, codes);
+            used.mark(codes);
         }
     }
+}
+
+/// Runs one rate-keeping stage ([`run_stage`]); a stage with a mix below 1 is then blended with its own input (kept in
+/// `dry`, whose capacity covers any block). The stage's own figures are of its output before the blend.
+fn run_node(
+    stage: &mut dyn Stage,
+    mix: f64,
+    buf: &mut [f32],
+    stats: Option<&mut StageStats>,
+    before: &mut Vec<f32>,
+    codes: &mut [u32],
+    dry: &mut Vec<f32>,
+) {
+    if mix == 1.0 {
+        return run_stage(stage, buf, stats, before, codes);
+    }
+    dry.clear();
+    dry.extend_from_slice(buf);
+    run_stage(stage, buf, stats, before, codes);
+    blend(buf, dry, mix);
 }
 
 /// `wet = mix·wet + (1 − mix)·dry`, in `f64`, rounded once to `f32`.

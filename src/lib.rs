@@ -9,7 +9,8 @@
 //! 2. [`codec`]: G.711 and IMA ADPCM, integer samples in, codes out;
 //! 3. [`stages`]: one file per stage, the [`stages::Stage`] trait, the [`stages::StageSpec`] that names them all, and
 //!    the [`stages::schema()`] of their fields;
-//! 4. [`analysis`]: levels, SQNR, spectra, loudness, headroom, the SQNR sweep;
+//! 4. [`analysis`]: levels, SQNR, spectra and spectrograms, loudness, headroom, the SQNR sweep, a chain's static
+//!    transfer curve and the codes a quantizer emits;
 //! 5. [`prep`]: asset preparation (channels, trim, fades, normalisation, loop points);
 //! 6. [`io`]: WAV reading and writing, raw and C-array exports;
 //! 7. [`preset`]: the versioned JSON preset and the built-in presets;

@@ -2,6 +2,7 @@
 //! CLI (for inputs it cannot stream) and the tests render through [`render`]; streams go through
 //! [`Chain::process_block`] directly and give the same samples.
 
+use crate::analysis::levels::SqnrAcc;
 use crate::audio::Clip;
 use crate::chain::{Chain, Processed, RenderReport};
 use crate::codec::{ima_adpcm, ms_adpcm};
@@ -10,6 +11,7 @@ use crate::io::{ExportFormat, ExportMeta, SampleLoop, WavEncoding};
 use crate::prep::{self, LoopRegion, PrepReport};
 use crate::preset::Preset;
 use crate::sample::sanitize;
+use crate::stages;
 
 /// The result of rendering a clip through a preset: asset preparation, then the chain.
 #[derive(Debug, Clone)]
@@ -76,6 +78,75 @@ pub fn render_with_loop(preset: &Preset, input: &Clip, file_loop: Option<(u64, u
         None => (None, None),
     };
     Ok(Render { export: r.export, audition: r.audition, prepared, prep, export_meta, report: r.report })
+}
+
+/// The signal after one stage of a chain, for audition and for that stage's meters ([`render_tap`]).
+#[derive(Debug, Clone)]
+pub struct Tap {
+    /// Index of the stage in the preset's `stages` (from 0).
+    pub stage: usize,
+    /// The chain cut after the stage, brought back to the source rate as the audition is: the signal after the stage,
+    /// aligned sample for sample with the chain's input (source rate, full-scale units).
+    pub signal: Clip,
+    /// The stage's output at its own rate (the source rate before the rate stage, the export rate from it on): the
+    /// cut chain's export; what the stage's codes are counted on ([`crate::analysis::codes`]).
+    pub at_stage_rate: Clip,
+    /// The error this stage alone adds, at the source rate: `signal` − `g`·(the same signal for the chain cut before
+    /// the stage), `g` being the stage's reference gain (1 but for the gain stage, whose gain is not an error; see
+    /// [`crate::stages::Stage::reference_gain`]). All zeros for a bypassed stage. After the rate stage this is the
+    /// stage's export-rate error brought back by the rate stage's expander (a linear filter, or a hold).
+    pub error: Clip,
+    /// SQNR of `signal` against `g`·(the stage's input), in dB, at the source rate; `None` when `error` is all zeros.
+    /// For a stage before the rate stage this is the report's per-stage figure; after it, the report measures at the
+    /// export rate, which can differ by the expander's imaging.
+    pub sqnr_db: Option<f64>,
+}
+
+/// The signal after stage `stage` (an index into `preset.stages`) and the error that stage alone adds: for hearing
+/// and seeing any point of the chain. Runs the preset's preparation once and two cut chains (up to the stage, and up to
+/// the one before it); the seeds of every stage are those of the whole chain, so `signal` is exactly what the full
+/// chain computes after that stage. Per-stage figures of the cut chains are not computed.
+pub fn render_tap(preset: &Preset, input: &Clip, stage: usize) -> Result<Tap> {
+    let n = preset.stages.len();
+    if stage >= n {
+        return Err(Error::param("stage", stage, format!("a stage index from 0 to {}", n as i64 - 1)));
+    }
+    let prepared =
+        if preset.prep.is_noop() { None } else { Some(prep::prepare(&preset.prep, input).map_err(|e| e.at("prep"))?) };
+    let clip = prepared.as_ref().map_or(input, |p| &p.clip);
+    let run = |len: usize| -> Result<Processed> {
+        let mut cut = preset.clone();
+        cut.stages.truncate(len);
+        Chain::new(&cut, clip.channel_count(), clip.sample_rate, clip.frames())?
+            .without_stage_stats()
+            .process_clip(clip)
+    };
+    let after = run(stage + 1)?;
+    let before = run(stage)?;
+    let slot = &preset.stages[stage];
+    let g = if slot.bypass {
+        1.0
+    } else {
+        // The reference gain of this stage (rate stages have none: 1).
+        stages::build(&slot.stage, crate::audio::MAX_SAMPLE_RATE, preset.seed, 0)
+            .ok()
+            .flatten()
+            .map_or(1.0, |s| s.reference_gain())
+    };
+    let mut acc = SqnrAcc::default();
+    let mut error = Vec::with_capacity(clip.channel_count());
+    for (y, x) in after.audition.channels.iter().zip(&before.audition.channels) {
+        let reference: Vec<f32> = if g == 1.0 { x.clone() } else { x.iter().map(|&v| (v as f64 * g) as f32).collect() };
+        acc.push_slices(&reference, y);
+        error.push(y.iter().zip(&reference).map(|(&o, &r)| o - r).collect());
+    }
+    Ok(Tap {
+        stage,
+        signal: after.audition,
+        at_stage_rate: after.export,
+        error: Clip { sample_rate: clip.sample_rate, channels: error },
+        sqnr_db: acc.db_if_error(),
+    })
 }
 
 /// A loop in chain-input frames (end exclusive) as the export's `smpl` loop: rescaled exactly to the export rate

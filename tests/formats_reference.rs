@@ -5,6 +5,8 @@
 //! own `SFC_GET_INSTRUMENT` / `SFC_SET_INSTRUMENT` commands (soundfile has no Python wrapper for them; they are
 //! called through soundfile's cffi handle).
 
+#![cfg(not(target_arch = "wasm32"))]
+
 mod common;
 
 use serde_json::Value;

@@ -161,6 +161,11 @@ impl SqnrAcc {
         self.pos += n as u64;
     }
 
+    /// SQNR in dB so far, or `None` when no pair differed (nothing pushed, or an exact match).
+    pub fn db_if_error(&self) -> Option<f64> {
+        (self.error.iter().sum::<f64>() > 0.0).then(|| self.db())
+    }
+
     /// SQNR in dB so far (+240 dB for an exact match).
     pub fn db(&self) -> f64 {
         let signal: f64 = self.signal.iter().sum();

@@ -1,7 +1,8 @@
 //! `stairstep analyze` and `stairstep sweep`: measurements for people (text) and scripts (`--json`).
 
-use super::{read_file, Failure, EXIT_INPUT, EXIT_USAGE};
+use super::{read_file, write_atomic, Failure, EXIT_INPUT, EXIT_USAGE};
 use serde::Serialize;
+use stairstep::analysis::spectrogram::{SpectrogramAnalyzer, SpectrogramParams};
 use stairstep::analysis::{sqnr_db, sqnr_sweep, Levels, SpectrumAnalyzer, SweepPoint, Window};
 use stairstep::stages::quantize::{Grid, QuantizeParams, Rounding};
 use stairstep::{io, Clip};
@@ -12,11 +13,18 @@ Reads WAV, FLAC, AIFF/AIFF-C, Ogg Vorbis, MP3 and CAF (PCM, ALAC).
 JSON fields (--json): file, decoder (which reader decoded the file), format, sample_rate, channels, frames, duration_s; levels {peak_dbfs, rms_dbfs (a full-scale sine
 reads 0 dBFS), dc, crest_db, at_full_scale (samples with |x| >= 1), non_finite, samples}; spectrum {fft_size, window,
 bin_hz, peaks: [{hz, dbfs}] (the five strongest local maxima), median_dbfs}; with --reference: reference, sqnr_db
-(reference power over the power of input minus reference; the files must have the same rate, channels and length).
+(reference power over the power of input minus reference; the files must have the same rate, channels and length);
+with --spectrogram: spectrogram {file, fft_size, hop, frames, group (STFT frames averaged per column), bins,
+seconds_per_column, hz_per_row, floor_dbfs}.
+
+--spectrogram FILE writes a greyscale PGM image (Netpbm, viewable almost anywhere): one column per frame (Hann
+window, powers averaged over channels, at most 2048 columns: longer sounds average neighbouring frames), one row per
+bin with 0 Hz at the bottom, white at 0 dBFS (a full-scale sine) and black at the floor (−120 dBFS by default).
 
 Examples:
   stairstep analyze out.wav
-  stairstep analyze out.wav --reference in.wav --json";
+  stairstep analyze out.wav --reference in.wav --json
+  stairstep analyze out.wav --spectrogram out.pgm --spectrogram-size 1024";
 
 /// `sqnr_db`'s reading for an error of exactly zero.
 const LOSSLESS_DB: f64 = 240.0;
@@ -43,6 +51,18 @@ pub struct AnalyzeArgs {
     /// Print JSON instead of text.
     #[arg(long)]
     json: bool,
+    /// Write a spectrogram of the input as a greyscale PGM image (see below).
+    #[arg(long, value_name = "FILE")]
+    spectrogram: Option<PathBuf>,
+    /// FFT size of the spectrogram (power of two, 256 to 8192); the hop is a quarter of it.
+    #[arg(long, default_value_t = 2048)]
+    spectrogram_size: usize,
+    /// Level drawn black in the spectrogram, in dBFS (below 0).
+    #[arg(long, default_value_t = -120.0, allow_negative_numbers = true)]
+    spectrogram_floor: f32,
+    /// Replace the spectrogram file if it exists.
+    #[arg(long)]
+    force: bool,
 }
 
 #[derive(clap::Args)]
@@ -106,6 +126,50 @@ struct Analysis {
     reference: Option<PathBuf>,
     #[serde(skip_serializing_if = "Option::is_none")]
     sqnr_db: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    spectrogram: Option<SpectrogramFile>,
+}
+
+/// Where a spectrogram image went and how to read its axes.
+#[derive(Serialize)]
+struct SpectrogramFile {
+    file: PathBuf,
+    fft_size: usize,
+    hop: usize,
+    frames: usize,
+    group: usize,
+    bins: usize,
+    seconds_per_column: f64,
+    hz_per_row: f64,
+    floor_dbfs: f32,
+}
+
+/// Writes the spectrogram of `clip` as a binary PGM (P5): frames left to right, bins bottom (0 Hz) to top.
+fn write_spectrogram(clip: &Clip, args: &AnalyzeArgs, path: &Path) -> Result<SpectrogramFile, Failure> {
+    let usage = |e: stairstep::Error| Failure::new(EXIT_USAGE, format!("--spectrogram-size: {e}"));
+    if !(args.spectrogram_floor.is_finite() && args.spectrogram_floor < 0.0) {
+        return Err(Failure::new(EXIT_USAGE, "--spectrogram-floor: a level below 0 dBFS, e.g. -120"));
+    }
+    let params = SpectrogramParams { size: args.spectrogram_size, ..Default::default() };
+    let s = SpectrogramAnalyzer::new(params).map_err(usage)?.analyze(&clip.channels, clip.sample_rate);
+    let bytes = s.to_u8(args.spectrogram_floor, 0.0);
+    let mut pgm = format!("P5\n{} {}\n255\n", s.frames, s.bins).into_bytes();
+    pgm.reserve(bytes.len());
+    for k in (0..s.bins).rev() {
+        pgm.extend((0..s.frames).map(|j| bytes[j * s.bins + k]));
+    }
+    write_atomic(path, &pgm, args.force)?;
+    Ok(SpectrogramFile {
+        file: path.to_path_buf(),
+        fft_size: s.size,
+        hop: s.hop,
+        frames: s.frames,
+        group: s.group,
+        bins: s.bins,
+        seconds_per_column: (s.group * s.hop) as f64 / clip.sample_rate as f64,
+        hz_per_row: s.bin_hz(1),
+        floor_dbfs: args.spectrogram_floor,
+    })
 }
 
 fn summary(clip: &Clip, fft_size: usize) -> Result<SpectrumSummary, Failure> {
@@ -156,6 +220,10 @@ pub fn analyze(args: AnalyzeArgs) -> Result<(), Failure> {
         }
         sqnr = Some(sqnr_db(&reference.channels, &clip.channels));
     }
+    let spectrogram = match &args.spectrogram {
+        Some(path) => Some(write_spectrogram(&clip, &args, path)?),
+        None => None,
+    };
     let a = Analysis {
         file: args.input.clone(),
         decoder: decoded.decoder,
@@ -168,6 +236,7 @@ pub fn analyze(args: AnalyzeArgs) -> Result<(), Failure> {
         spectrum: summary(&clip, args.fft_size)?,
         reference: args.reference.clone(),
         sqnr_db: sqnr,
+        spectrogram,
     };
     if args.json {
         println!("{}", serde_json::to_string_pretty(&a).unwrap_or_default());
@@ -195,6 +264,17 @@ pub fn analyze(args: AnalyzeArgs) -> Result<(), Failure> {
     );
     for p in &a.spectrum.peaks {
         println!("            {:10.1} Hz  {:7.1} dBFS", p.hz, p.dbfs);
+    }
+    if let Some(s) = &a.spectrogram {
+        println!(
+            "  spectrogram {} ({} × {}: {:.1} ms per column, {:.2} Hz per row, black at {} dBFS)",
+            s.file.display(),
+            s.frames,
+            s.bins,
+            s.seconds_per_column * 1e3,
+            s.hz_per_row,
+            s.floor_dbfs
+        );
     }
     if let Some(s) = a.sqnr_db {
         println!(

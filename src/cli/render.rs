@@ -11,6 +11,7 @@ use super::{load_preset, write_atomic, write_atomic_with, Failure, EXISTS, EXIT_
 use indicatif::{ProgressBar, ProgressStyle};
 use rayon::prelude::*;
 use serde::Serialize;
+use stairstep::chain::StageReport;
 use stairstep::io::ExportFormat;
 use stairstep::{io, render, Clip, Preset};
 use std::collections::HashMap;
@@ -134,6 +135,9 @@ struct Outcome {
     /// Loop points written, at the export rate (inclusive end, as in `smpl`).
     #[serde(skip_serializing_if = "Option::is_none")]
     loop_frames: Option<(u32, u32)>,
+    /// What each stage did on its own (the render report's `stages`: kind, SQNR, clipped samples, codes used).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    stages: Option<Vec<StageReport>>,
     /// Exit code this failure maps to (0 when ok).
     #[serde(skip)]
     code: u8,
@@ -293,6 +297,8 @@ struct Measured {
     loop_frames: Option<(u32, u32)>,
     /// SHA-256 of the bytes written (when a manifest is kept).
     output_sha256: Option<String>,
+    /// What each stage did on its own (the render report's `stages`).
+    stages: Vec<StageReport>,
 }
 
 /// How one render may write its output and what it must check.
@@ -459,6 +465,7 @@ fn render_streaming(
         bytes,
         loop_frames: None,
         output_sha256,
+        stages: r.stages,
     }))
 }
 
@@ -488,6 +495,7 @@ fn render_in_memory(
         bytes: bytes.len() as u64,
         loop_frames: r.export_meta.loops.first().map(|l| (l.start, l.end)),
         output_sha256: rules.hash.then(|| manifest::sha256(&bytes)),
+        stages: r.report.stages.clone(),
     })
 }
 
@@ -561,6 +569,7 @@ fn outcome(job: &Job) -> Outcome {
         bytes: None,
         warnings: Vec::new(),
         loop_frames: None,
+        stages: None,
         code: 0,
     }
 }
@@ -635,6 +644,7 @@ fn render_one(job: &Job, b: &Batch, tx: Option<&Sender<(String, Entry)>>, progre
         o.sqnr_db = Some(m.sqnr_db);
         o.bytes = Some(m.bytes);
         o.loop_frames = m.loop_frames;
+        o.stages = Some(m.stages);
         Ok(())
     })();
     match result {

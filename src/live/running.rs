@@ -81,7 +81,7 @@ impl RunningChain {
     /// Builds the chain of `base` with `settings`, for `channels` channels at `sample_rate` Hz.
     pub fn build(base: &Preset, settings: LiveSettings, channels: usize, sample_rate: u32) -> Result<RunningChain> {
         let preset = settings.apply(base);
-        let chain = Chain::new(&preset, channels, sample_rate, UNBOUNDED)?;
+        let chain = Chain::new(&preset, channels, sample_rate, UNBOUNDED)?.without_stage_stats();
         // The most one block can produce, and the latency (see the docs of [`super`]), from the rate stage.
         let rate_stage = preset.active_stages().find_map(|s| match s {
             StageSpec::Rate(r) => Some(r),

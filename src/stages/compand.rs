@@ -250,6 +250,17 @@ impl Stage for Compander {
     fn clipped(&self) -> u64 {
         Compander::clipped(self)
     }
+    /// `2^bits` (the sign-magnitude word; `2^bits − 1` of its codes are distinct levels, zero having one code).
+    fn code_space(&self) -> Option<u64> {
+        Some(1u64 << self.params.bits)
+    }
+    /// Index `k + K` of the code `k ∈ −K…K` (so 0 … 2K).
+    fn code_indices(&self, out: &[f32], codes: &mut [u32]) {
+        let k = self.k as i32;
+        for (c, &y) in codes.iter_mut().zip(out) {
+            *c = (self.encode(y).clamp(-k, k) + k) as u32;
+        }
+    }
 }
 
 #[cfg(test)]

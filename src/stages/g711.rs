@@ -94,6 +94,22 @@ impl Stage for G711 {
     fn clipped(&self) -> u64 {
         G711::clipped(self)
     }
+    /// The 256 codes of the 8-bit word.
+    fn code_space(&self) -> Option<u64> {
+        Some(256)
+    }
+    /// The 8-bit G.711 code (as transmitted, after the codec's bit inversions) that decodes to the sample. μ-law has
+    /// two codes for zero (0x7F and 0xFF); zero is counted as 0xFF, so μ-law output uses at most 255 codes.
+    fn code_indices(&self, out: &[f32], codes: &mut [u32]) {
+        for (c, &y) in codes.iter_mut().zip(out) {
+            // Output samples are 16-bit values ÷ 32768, so this product is exact.
+            let x = (y as f64 * 32768.0).clamp(-32768.0, 32767.0) as i16;
+            *c = match self.params.law {
+                Law::Mulaw => linear_to_ulaw(x),
+                Law::Alaw => linear_to_alaw(x),
+            } as u32;
+        }
+    }
 }
 
 // ---------------------------------------------------------------------------------------------------------------------

@@ -207,6 +207,10 @@ impl Stage for Gain {
     fn clipped(&self) -> u64 {
         Gain::clipped(self)
     }
+    /// The gain is intended: only what the overflow rule does to `x·gain` counts as this stage's error.
+    fn reference_gain(&self) -> f64 {
+        self.gain
+    }
 }
 
 #[cfg(test)]

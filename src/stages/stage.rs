@@ -19,4 +19,21 @@ pub trait Stage: Send {
         let _ = input_ms;
         None
     }
+    /// The gain of the ideal stage this one's error is measured against: its output is compared with its input times
+    /// this factor, rounded to `f32` as the stage rounds (1.0 for every stage but gain, whose gain is intended and
+    /// whose error is only what its overflow rule does).
+    fn reference_gain(&self) -> f64 {
+        1.0
+    }
+    /// For stages whose every output sample is one code of a fixed word (the quantizers): the number of codes of
+    /// that word, `2^B` for a `B`-bit word (a uniform quantizer with `levels` set: that many). `None` for the others.
+    fn code_space(&self) -> Option<u64> {
+        None
+    }
+    /// Writes to `codes[i]` the code of `out[i]`, an output sample of this stage, as an index `0 .. code_space`
+    /// (see each stage for its numbering). Only called on stages with a [`code_space`](Self::code_space), with
+    /// slices of equal length; a sample no code of this stage produces gets some index below `code_space`.
+    fn code_indices(&self, out: &[f32], codes: &mut [u32]) {
+        codes[..out.len()].fill(0);
+    }
 }

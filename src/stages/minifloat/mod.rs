@@ -209,6 +209,27 @@ impl Minifloat {
         ((q / self.full).copysign(x) as f32, clipped)
     }
 
+    /// The bit pattern (sign, exponent, mantissa) of the format value nearest to an output sample `y`: exact for this
+    /// stage's outputs, which are format values times [`scale`](Self::scale).
+    pub fn code_of(&self, y: f32) -> u64 {
+        let (e_bits, m) = (self.params.exponent_bits, self.m);
+        let sign = (y.is_sign_negative() as u64) << (e_bits + m as u32);
+        let t = (sanitize(y) as f64).abs() * self.full;
+        if t == 0.0 {
+            return sign;
+        }
+        let (field, frac) = if t < self.min_normal {
+            (0u64, (t * pow2(m - self.emin)).round_ties_even())
+        } else {
+            let e = exponent_of(t);
+            ((e - self.emin + 1) as u64, (t * pow2(m - e)).round_ties_even() - pow2(m))
+        };
+        // Rounding can carry a mantissa into the next exponent; the field arithmetic below absorbs that.
+        let max = (1u64 << (e_bits + m as u32)) - 1;
+        let code = (field << m) as i64 + frac as i64;
+        sign | (code.clamp(0, max as i64) as u64)
+    }
+
     /// Quantizes one sample (no counting).
     #[inline]
     pub fn quantize(&self, x: f32) -> f32 {
@@ -252,6 +273,16 @@ impl Stage for Minifloat {
     }
     fn clipped(&self) -> u64 {
         Minifloat::clipped(self)
+    }
+    /// `2^(1 + e + m)`: every bit pattern of the word (the unused all-ones exponent included).
+    fn code_space(&self) -> Option<u64> {
+        Some(1u64 << (1 + self.params.exponent_bits + self.params.mantissa_bits))
+    }
+    /// The word's bit pattern: sign, exponent field, mantissa field (`−0.0` has the sign bit set).
+    fn code_indices(&self, out: &[f32], codes: &mut [u32]) {
+        for (c, &y) in codes.iter_mut().zip(out) {
+            *c = self.code_of(y) as u32;
+        }
     }
 }
 
