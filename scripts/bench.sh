@@ -155,7 +155,7 @@ r, n = 48000, 48000 * int(sys.argv[2])
 t = np.arange(n) / r
 noise = 0.05 * np.random.default_rng(1).standard_normal(n)
 x = np.stack([0.5 * np.sin(2 * np.pi * 440 * t) + noise, 0.4 * np.sin(2 * np.pi * 660 * t)], 1)
-sf.write(sys.argv[1], x.astype(np.float32), r, subtype="FLOAT")' "$CLI_IN.tmp" "$CLI_SECONDS"
+sf.write(sys.argv[1], x.astype(np.float32), r, subtype="FLOAT", format="WAV")' "$CLI_IN.tmp" "$CLI_SECONDS"
   mv "$CLI_IN.tmp" "$CLI_IN"
 fi
 cat > "$OUT/cli-chain.json" <<'JSON'
