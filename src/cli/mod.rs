@@ -3,7 +3,9 @@
 mod analyze;
 mod budget;
 mod manifest;
+mod plan;
 mod render;
+mod render_file;
 mod serve;
 mod stages;
 

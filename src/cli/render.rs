@@ -6,17 +6,17 @@
 //! skip what is up to date and re-render what is stale; `--shard K/N` takes a fixed 1/N of the batch.
 
 use super::manifest::{self, Entry, Known};
-use super::EXIT_USAGE;
-use super::{load_preset, write_atomic, write_atomic_with, Failure, EXISTS, EXIT_INPUT, EXIT_OUTPUT};
+use super::plan::{parse_shard, plan, Job};
+use super::render_file::{render_in_memory, render_streaming, WriteRules};
+use super::{load_preset, Failure, EXISTS, EXIT_INPUT, EXIT_OUTPUT, EXIT_USAGE};
 use indicatif::{ProgressBar, ProgressStyle};
 use rayon::prelude::*;
 use serde::Serialize;
 use stairstep::chain::StageReport;
 use stairstep::io::ExportFormat;
-use stairstep::{io, render, Clip, Preset};
-use std::collections::HashMap;
+use stairstep::{io, Preset};
 use std::io::IsTerminal;
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 use std::sync::mpsc::Sender;
 
 pub const HELP: &str = "\
@@ -53,56 +53,46 @@ Examples:
 pub struct Args {
     /// Preset JSON file, or the name of a built-in preset (see `stairstep presets`).
     #[arg(short, long)]
-    preset: String,
+    pub(super) preset: String,
     /// Input WAV files or folders.
     #[arg(required = true)]
-    inputs: Vec<PathBuf>,
+    pub(super) inputs: Vec<PathBuf>,
     /// Output file (one input only).
     #[arg(short, long, conflicts_with = "out_dir")]
-    output: Option<PathBuf>,
+    pub(super) output: Option<PathBuf>,
     /// Output folder (created if missing).
     #[arg(long)]
-    out_dir: Option<PathBuf>,
+    pub(super) out_dir: Option<PathBuf>,
     /// Output name template (with --out-dir).
     #[arg(long, default_value = "{dir}/{stem}.{ext}")]
-    name: String,
+    pub(super) name: String,
     /// Look for WAV files in sub-folders too.
     #[arg(short, long)]
-    recursive: bool,
+    pub(super) recursive: bool,
     /// Export format instead of the preset's, as JSON, e.g. '{"type":"wav","encoding":"pcm-u8"}'.
     #[arg(long)]
-    format: Option<String>,
+    pub(super) format: Option<String>,
     /// Replace existing outputs.
     #[arg(long)]
-    force: bool,
+    pub(super) force: bool,
     /// Print nothing but failures and warnings.
     #[arg(short, long)]
-    quiet: bool,
+    pub(super) quiet: bool,
     /// Print a JSON array (one object per file) on standard output.
     #[arg(long)]
-    json: bool,
+    pub(super) json: bool,
     /// Make any warning about a file (e.g. truncated) a failure of that file: nothing is written for it.
     #[arg(long)]
-    strict: bool,
+    pub(super) strict: bool,
     /// List what would be rendered, replaced, skipped (up to date) or refused, and write nothing.
     #[arg(long)]
-    dry_run: bool,
+    pub(super) dry_run: bool,
     /// Render only shard K of N (1 <= K <= N): a fixed share of the inputs, for N jobs that split a batch.
     #[arg(long, value_name = "K/N", value_parser = parse_shard)]
-    shard: Option<(u64, u64)>,
+    pub(super) shard: Option<(u64, u64)>,
     /// Worker threads (default: all cores).
     #[arg(short, long)]
-    jobs: Option<usize>,
-}
-
-fn parse_shard(s: &str) -> Result<(u64, u64), String> {
-    let bad = || format!("{s:?}: K/N with 1 <= K <= N, e.g. 2/4");
-    let (k, n) = s.split_once('/').ok_or_else(bad)?;
-    let (k, n): (u64, u64) = (k.trim().parse().map_err(|_| bad())?, n.trim().parse().map_err(|_| bad())?);
-    if k == 0 || n == 0 || k > n {
-        return Err(bad());
-    }
-    Ok((k, n))
+    pub(super) jobs: Option<usize>,
 }
 
 /// One file's outcome, as printed by `--json`.
@@ -141,362 +131,6 @@ struct Outcome {
     /// Exit code this failure maps to (0 when ok).
     #[serde(skip)]
     code: u8,
-}
-
-/// One input and where its output goes.
-struct Job {
-    input: PathBuf,
-    output: PathBuf,
-    /// The output's path relative to --out-dir (`/`-separated; the manifest's key and the shard hash's input), or the
-    /// output as given to -o.
-    key: String,
-    /// The input's file name without extension.
-    stem: String,
-}
-
-/// File name extensions a folder walk picks up (the content decides how a file is read; see `io::decode`).
-const SOUND_EXTENSIONS: [&str; 10] = ["wav", "wave", "flac", "aif", "aiff", "aifc", "ogg", "oga", "mp3", "caf"];
-
-fn is_sound(p: &Path) -> bool {
-    p.extension().is_some_and(|e| SOUND_EXTENSIONS.iter().any(|s| e.eq_ignore_ascii_case(s)))
-}
-
-fn collect(dir: &Path, base: &Path, recursive: bool, out: &mut Vec<(PathBuf, PathBuf)>) -> Result<(), Failure> {
-    let mut entries: Vec<PathBuf> = std::fs::read_dir(dir)
-        .map_err(|e| Failure::new(EXIT_INPUT, format!("{}: {e}", dir.display())))?
-        .filter_map(|e| e.ok().map(|e| e.path()))
-        .collect();
-    entries.sort();
-    for p in entries {
-        if p.is_dir() {
-            if recursive {
-                collect(&p, base, recursive, out)?;
-            }
-        } else if is_sound(&p) {
-            let rel = p.parent().and_then(|d| d.strip_prefix(base).ok()).unwrap_or(Path::new("")).to_path_buf();
-            out.push((p, rel));
-        }
-    }
-    Ok(())
-}
-
-const PLACEHOLDERS: [&str; 4] = ["{stem}", "{preset}", "{ext}", "{dir}"];
-
-/// Refuses a --name template with a placeholder other than [`PLACEHOLDERS`] (or an unclosed brace).
-fn check_template(template: &str) -> Result<(), Failure> {
-    let mut rest = template;
-    while let Some(i) = rest.find('{') {
-        let after = &rest[i..];
-        let Some(j) = after.find('}') else {
-            return Err(Failure::new(EXIT_USAGE, format!("--name {template:?}: a {{ without its }}")));
-        };
-        let ph = &after[..=j];
-        if !PLACEHOLDERS.contains(&ph) {
-            return Err(Failure::new(
-                EXIT_USAGE,
-                format!("--name {template:?}: unknown placeholder {ph}; there are {}", PLACEHOLDERS.join(", ")),
-            ));
-        }
-        rest = &after[j + 1..];
-    }
-    Ok(())
-}
-
-fn expand(template: &str, stem: &str, preset: &str, ext: &str, dir: &Path) -> PathBuf {
-    let dir = dir.to_string_lossy();
-    let s = template.replace("{stem}", stem).replace("{preset}", preset).replace("{ext}", ext).replace("{dir}", &dir);
-    // An empty {dir} leaves a leading slash: keep outputs inside --out-dir.
-    PathBuf::from(s.trim_start_matches('/'))
-}
-
-fn stem_of(p: &Path) -> String {
-    p.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_default()
-}
-
-/// A relative path as a `/`-separated key.
-fn key_of(rel: &Path) -> String {
-    rel.components().map(|c| c.as_os_str().to_string_lossy()).collect::<Vec<_>>().join("/")
-}
-
-fn plan(args: &Args, preset: &Preset, export: &ExportFormat) -> Result<Vec<Job>, Failure> {
-    check_template(&args.name)?;
-    let mut found = Vec::new();
-    for input in &args.inputs {
-        if input.is_dir() {
-            collect(input, input, args.recursive, &mut found)?;
-        } else {
-            found.push((input.clone(), PathBuf::new()));
-        }
-    }
-    if found.is_empty() {
-        return Err(Failure::new(
-            EXIT_INPUT,
-            "no sound files (WAV, FLAC, AIFF, Ogg, MP3, CAF) found in the inputs given",
-        ));
-    }
-    let jobs: Vec<Job> = match (&args.output, &args.out_dir) {
-        (Some(out), None) => {
-            if found.len() != 1 {
-                return Err(Failure::new(
-                    EXIT_USAGE,
-                    format!("-o takes one input, got {}: use --out-dir", found.len()),
-                ));
-            }
-            let (input, _) = found.pop().expect("one input");
-            vec![Job { stem: stem_of(&input), input, output: out.clone(), key: key_of(out) }]
-        }
-        (None, Some(dir)) => found
-            .into_iter()
-            .map(|(input, rel_dir)| {
-                let stem = stem_of(&input);
-                let name = expand(&args.name, &stem, &slug(&preset.name), export.extension(), &rel_dir);
-                Job { output: dir.join(&name), key: key_of(&name), stem, input }
-            })
-            .collect(),
-        _ => return Err(Failure::new(EXIT_USAGE, "give either -o FILE (one input) or --out-dir DIR")),
-    };
-    // Two inputs must not land on one output, and no output may be an input.
-    let inputs: Vec<PathBuf> = jobs.iter().filter_map(|j| j.input.canonicalize().ok()).collect();
-    let mut seen: HashMap<PathBuf, &Path> = HashMap::new();
-    for j in &jobs {
-        if let Some(first) = seen.insert(j.output.clone(), &j.input) {
-            return Err(Failure::new(
-                EXIT_USAGE,
-                format!(
-                    "{} and {} would both be written to {}: change --name",
-                    first.display(),
-                    j.input.display(),
-                    j.output.display()
-                ),
-            ));
-        }
-        if j.output.canonicalize().is_ok_and(|o| inputs.contains(&o)) {
-            return Err(Failure::new(EXIT_OUTPUT, format!("{}: refusing to overwrite an input", j.output.display())));
-        }
-    }
-    Ok(jobs)
-}
-
-fn slug(s: &str) -> String {
-    let s: String = s.chars().map(|c| if c.is_ascii_alphanumeric() { c.to_ascii_lowercase() } else { '-' }).collect();
-    let s = s.split('-').filter(|p| !p.is_empty()).collect::<Vec<_>>().join("-");
-    if s.is_empty() {
-        "custom".into()
-    } else {
-        s
-    }
-}
-
-/// What a render measured, for the report.
-struct Measured {
-    duration_s: f64,
-    peak_dbfs: f64,
-    clipped: u64,
-    sqnr_db: f64,
-    bytes: u64,
-    loop_frames: Option<(u32, u32)>,
-    /// SHA-256 of the bytes written (when a manifest is kept).
-    output_sha256: Option<String>,
-    /// What each stage did on its own (the render report's `stages`).
-    stages: Vec<StageReport>,
-}
-
-/// How one render may write its output and what it must check.
-struct WriteRules {
-    /// Replace an existing output (--force or a stale manifest entry); otherwise the output must be new.
-    replace: bool,
-    /// Fail on any warning, before the output is put in place.
-    strict: bool,
-    /// Hash the bytes written (for the manifest).
-    hash: bool,
-}
-
-/// Under --strict, any warning fails the file; the warnings stay in the outcome.
-fn strict_check(rules: &WriteRules, warnings: &[String]) -> Result<(), Failure> {
-    if rules.strict && !warnings.is_empty() {
-        let n = warnings.len();
-        return Err(Failure::new(
-            EXIT_INPUT,
-            format!("--strict: {n} warning{} (nothing written)", if n == 1 { "" } else { "s" }),
-        ));
-    }
-    Ok(())
-}
-
-/// The warnings a render adds to the reader's: non-finite samples and the preparation's notes.
-fn render_warnings(non_finite: u64, prep_notes: &[String], warnings: &mut Vec<String>) {
-    if non_finite > 0 {
-        warnings.push(format!("{non_finite} input samples were NaN or infinite (rendered as 0 and ±1.0)"));
-    }
-    warnings.extend(prep_notes.iter().map(|n| format!("preparation: {n}")));
-}
-
-/// The sound of an input file, as the in-memory render needs it. This is the one place that reads a whole input.
-struct Input {
-    clip: Clip,
-    /// A loop from the file's own metadata (a WAV `smpl` chunk), in source frames, end exclusive.
-    file_loop: Option<(u64, u64)>,
-    /// What the reader noticed but could read past.
-    warnings: Vec<String>,
-}
-
-/// Reads a whole input file. Errors do not repeat the file's name: the line that reports them names it.
-fn read_input(path: &Path) -> Result<Input, Failure> {
-    // WAV through the project's own reader, FLAC, AIFF, Ogg, MP3 and CAF through symphonia; a loop in the file's own
-    // `smpl` (WAV) or `INST` (AIFF) chunk comes along.
-    let d = io::decode::read_any_file(path).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
-    Ok(Input { clip: d.clip, file_loop: d.file_loop, warnings: d.warnings })
-}
-
-/// Renders in blocks, from file to file, when nothing needs the whole sound at once: a byte-aligned WAV input
-/// without loops, a preset without asset preparation (trim, normalisation, loops need the whole sound), a
-/// byte-aligned WAV export. Memory stays at a few blocks whatever the length. `Ok(None)`: use the in-memory path.
-fn render_streaming(
-    job: &Job,
-    preset: &Preset,
-    export: &ExportFormat,
-    rules: &WriteRules,
-    warnings: &mut Vec<String>,
-    progress: Option<&ProgressBar>,
-) -> Result<Option<Measured>, Failure> {
-    use manifest::HashingWriter;
-    use stairstep::chain::{Chain, ChainOutput};
-    use stairstep::io::wav::stream::{StreamReader, StreamWriter};
-    use stairstep::stages::BLOCK;
-    let ExportFormat::Wav { encoding, block_align: None } = export else { return Ok(None) };
-    if !preset.prep.is_noop() || !StreamWriter::<std::fs::File>::supports(*encoding) {
-        return Ok(None);
-    }
-    let input_err = |e: std::io::Error| Failure::new(EXIT_INPUT, e.to_string());
-    let file = std::fs::File::open(&job.input).map_err(input_err)?;
-    let reader = StreamReader::open(std::io::BufReader::with_capacity(1 << 20, file))
-        .map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
-    let Some(mut reader) = reader else { return Ok(None) };
-    warnings.append(&mut reader.warnings);
-    strict_check(rules, warnings)?;
-    let f = reader.format().clone();
-    let (ch, rate, frames) = (f.channels as usize, f.sample_rate, reader.frames());
-    let mut chain = Chain::new(preset, ch, rate, frames).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
-    if let Some(p) = progress {
-        p.set_length(frames as u64);
-    }
-    let mut out = ChainOutput::new(ch);
-    let mut report = None;
-    let mut bytes = 0u64;
-    let mut output_sha256 = None;
-    let mut stage_error = None;
-    write_atomic_with(&job.output, rules.replace, |file| {
-        let io_err = |e: stairstep::Error| std::io::Error::other(e.to_string());
-        let sink = std::io::BufWriter::with_capacity(1 << 20, HashingWriter::new(&mut *file, rules.hash));
-        let mut w =
-            StreamWriter::new(sink, *encoding, chain.export_rate(), ch, chain.export_frames(), Default::default())
-                .map_err(io_err)?;
-        // Encoding and writing run on a second thread, overlapping the chain: export blocks go over a bounded
-        // channel (in order, so the bytes are those of one thread) and come back empty for reuse.
-        let sink = std::thread::scope(|s| -> std::io::Result<_> {
-            let (to_writer, blocks) = std::sync::mpsc::sync_channel::<Vec<Vec<f32>>>(4);
-            let (give_back, spare) = std::sync::mpsc::channel::<Vec<Vec<f32>>>();
-            let writer = s.spawn(move || -> std::io::Result<_> {
-                for mut block in blocks {
-                    w.write_block(&block).map_err(io_err)?;
-                    block.iter_mut().for_each(Vec::clear);
-                    let _ = give_back.send(block);
-                }
-                w.finish().map_err(io_err)
-            });
-            let send = |out: &mut ChainOutput| {
-                let empty = spare.try_recv().unwrap_or_else(|_| vec![Vec::with_capacity(BLOCK); ch]);
-                let full = std::mem::replace(&mut out.export, empty);
-                out.clear();
-                to_writer.send(full).is_ok()
-            };
-            let mut fed = true;
-            loop {
-                let block = match reader.read_block(BLOCK) {
-                    Ok(b) => b,
-                    Err(e) => {
-                        stage_error = Some(Failure::new(EXIT_INPUT, e.to_string()));
-                        fed = false;
-                        break;
-                    }
-                };
-                if block[0].is_empty() {
-                    break;
-                }
-                chain.process_block(&block, &mut out);
-                if !send(&mut out) {
-                    fed = false;
-                    break;
-                }
-                if let Some(p) = progress {
-                    p.inc(block[0].len() as u64);
-                }
-            }
-            if fed {
-                let r = chain.finish(&mut out);
-                warnings.append(&mut reader.warnings);
-                render_warnings(r.non_finite_inputs, &[], warnings);
-                if let Err(f) = strict_check(rules, warnings) {
-                    stage_error = Some(f);
-                    fed = false;
-                }
-                report = Some(r);
-                fed = fed && send(&mut out);
-            }
-            drop(to_writer);
-            let written = writer.join().unwrap_or_else(|_| Err(std::io::Error::other("writer thread stopped")));
-            match (fed, written) {
-                (true, w) => w,
-                (false, Err(e)) if stage_error.is_none() => Err(e),
-                (false, _) => Err(std::io::Error::other("render stopped")),
-            }
-        })?;
-        output_sha256 = sink.into_inner().map_err(|e| e.into_error())?.hex();
-        bytes = file.metadata()?.len();
-        Ok(())
-    })
-    .map_err(|e| stage_error.take().unwrap_or(e))?;
-    let r = report.expect("finished");
-    Ok(Some(Measured {
-        duration_s: frames as f64 / rate as f64,
-        peak_dbfs: r.output.peak_dbfs,
-        clipped: r.clipped,
-        sqnr_db: r.sqnr_db,
-        bytes,
-        loop_frames: None,
-        output_sha256,
-        stages: r.stages,
-    }))
-}
-
-/// Renders with the whole sound in memory (everything the streaming path does not cover).
-fn render_in_memory(
-    job: &Job,
-    preset: &Preset,
-    export: &ExportFormat,
-    rules: &WriteRules,
-    warnings: &mut Vec<String>,
-) -> Result<Measured, Failure> {
-    let mut input = read_input(&job.input)?;
-    warnings.append(&mut input.warnings);
-    strict_check(rules, warnings)?;
-    // A loop in the file's own metadata is kept when the preset sets none.
-    let r = render::render_with_loop(preset, &input.clip, input.file_loop)
-        .map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
-    render_warnings(r.report.non_finite_inputs, r.prep.as_ref().map_or(&[], |p| &p.notes), warnings);
-    strict_check(rules, warnings)?;
-    let bytes = r.encode(export).map_err(|e| Failure::new(EXIT_OUTPUT, e.to_string()))?;
-    write_atomic(&job.output, &bytes, rules.replace)?;
-    Ok(Measured {
-        duration_s: input.clip.duration_s(),
-        peak_dbfs: r.report.output.peak_dbfs,
-        clipped: r.report.clipped,
-        sqnr_db: r.report.sqnr_db,
-        bytes: bytes.len() as u64,
-        loop_frames: r.export_meta.loops.first().map(|l| (l.start, l.end)),
-        output_sha256: rules.hash.then(|| manifest::sha256(&bytes)),
-        stages: r.report.stages.clone(),
-    })
 }
 
 /// The export for one input: a C array's name template gets the input's stem.

@@ -40,6 +40,7 @@
 //! Plain PCM tags are used even for 24/32 bits and more than two channels (no `WAVE_FORMAT_EXTENSIBLE`): every
 //! reader accepts them, game engines included.
 
+mod fmt;
 mod read;
 pub mod stream;
 mod write;

@@ -6,7 +6,8 @@
 //! nature), loops, raw and C-array outputs go through the in-memory [`read`](super::read) and writers instead.
 //! Both produce exactly the bytes and samples of the in-memory functions.
 
-use super::read::{decode_frames, parse_fmt, truncation};
+use super::fmt::parse_fmt;
+use super::read::{decode_frames, truncation};
 use super::write::{body_append, header, trailer};
 use super::{WavFormat, WAVE_FORMAT_G721_ADPCM, WAVE_FORMAT_IMA_ADPCM, WAVE_FORMAT_MS_ADPCM};
 use crate::error::{Error, Result};
