@@ -270,3 +270,23 @@ fn pick_respects_the_limits() {
     let i = budget::pick(&cands, Score::Sqnr, Limit::MaxBytes(small)).unwrap();
     assert_eq!(cands[i].bytes, small);
 }
+
+#[test]
+fn candidates_and_limits_read_back_from_their_json_unchanged() {
+    // The page keeps the measured candidates in JS and hands them back to the core for the front and the pick
+    // (Session::budgetPick), with the limit written as the CLI's `--json` writes it.
+    let clip = short_demo("drum-hit", 0.2);
+    let b = Budget::new(&Preset::default(), &clip, None).unwrap();
+    let (mut cands, _) = b.measure_all().unwrap();
+    let back: Vec<budget::Candidate> = serde_json::from_str(&serde_json::to_string(&cands).unwrap()).unwrap();
+    assert_eq!(back, cands);
+    for limit in [Limit::None, Limit::MaxBytes(8192), Limit::MaxKbps(64.0)] {
+        let json = serde_json::to_string(&limit).unwrap();
+        assert_eq!(serde_json::from_str::<Limit>(&json).unwrap(), limit, "{json}");
+    }
+    assert_eq!(serde_json::from_str::<Limit>(r#"{"kind":"max-bytes","value":8192}"#).unwrap(), Limit::MaxBytes(8192));
+    budget::mark_pareto(&mut cands, Score::AWeighted);
+    let mut back = back;
+    budget::mark_pareto(&mut back, Score::AWeighted);
+    assert_eq!(back, cands);
+}
