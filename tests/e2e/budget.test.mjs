@@ -143,13 +143,21 @@ test('a chain change while the candidates are measured cancels them; no table of
   const firstKey = b.running.key;
   // Change the chain: 10 → 6 bits.
   const bits = page.locator('#f-1-bits');
-  await afterRender(page, async () => { await bits.fill('6'); await bits.press('Enter'); });
+  const before = await page.evaluate(() => +document.body.dataset.rendered);
+  const t0 = Date.now();
+  await bits.fill('6');
+  await bits.press('Enter');
+  await page.waitForFunction((n) => +document.body.dataset.rendered > n, before);
+  const renderMs = Date.now() - t0;
   b = await budgetState(page);
   assert.equal(b.cancels, 1, 'the measurement under way was cancelled');
   assert.ok(!b.shown || b.shown.key === b.currentKey());
   await waitForPick(page);
   b = await budgetState(page);
   assert.equal(b.runs, 2);
+  console.log(`pad (4 s stereo): ${b.shown.candidates.length} candidates in ${b.shown.ms.toFixed(0)} ms; the edit made ` +
+    `during the first measurement was rendered and drawn ${renderMs} ms after Enter (the worker finishes the ` +
+    'candidate under way first)');
   assert.equal(await page.evaluate((k) => window.stairstepBudget.cache.has(k), firstKey), false,
     'the cancelled measurement left no result');
   const current = b.shown.candidates.find((c) => c.current);

@@ -90,7 +90,7 @@ function toggle(open) {
   budget.open = open;
   $('budget-panel').hidden = !open;
   $('budget-toggle').setAttribute('aria-expanded', String(open));
-  if (open) { drawBudget(); startWhenIdle(); $('budget-limit-kind').focus(); } else { cancel(); $('budget-toggle').focus(); }
+  if (open) { drawBudget(); startWhenIdle(false); $('budget-limit-kind').focus(); } else { cancel(); $('budget-toggle').focus(); }
 }
 
 // Before every render request (hooks.presetChanged): a measurement or a table of other settings goes.
@@ -114,8 +114,16 @@ export function budgetRendered() {
   if (budget.open) startWhenIdle();
 }
 
-function startWhenIdle() {
-  requestAnimationFrame(() => setTimeout(start, 0));
+// A measurement starts once an edit's render has been painted and no other edit followed for SETTLE_MS (a slider
+// being dragged does not start one per step); kept results are shown as soon as the render is painted.
+const SETTLE_MS = 250;
+let startTimer = 0;
+function startWhenIdle(settle = true) {
+  requestAnimationFrame(() => {
+    clearTimeout(startTimer);
+    const kept = state.renderedPreset && budget.cache.has(keyFor(state.renderedPreset));
+    startTimer = setTimeout(start, kept || !settle ? 0 : SETTLE_MS);
+  });
 }
 
 function start() {
