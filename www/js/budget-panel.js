@@ -139,6 +139,7 @@ function start() {
   const job = { key, token: nextToken++, done: 0, total: 0 };
   budget.running = job;
   budget.runs++;
+  drawBudget();
   showProgress();
   call('budget', { preset: presetJson, token: job.token }).then((msg) => {
     if (budget.running !== job) return;
