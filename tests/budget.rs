@@ -270,3 +270,43 @@ fn pick_respects_the_limits() {
     let i = budget::pick(&cands, Score::Sqnr, Limit::MaxBytes(small)).unwrap();
     assert_eq!(cands[i].bytes, small);
 }
+
+#[test]
+fn candidates_and_limits_read_back_from_their_json_give_the_same_front_and_pick() {
+    // The page keeps the measured candidates in JS and hands them back to the core for the front and the pick
+    // (Session::budgetPick), with the limit written as the CLI's `--json` writes it. serde_json's default float
+    // parser may miss by one unit in the last place, so figures come back within 1e-12 relative; the same text
+    // always gives the same number, so ties stay ties, and the front and the picks are the same.
+    let clip = short_demo("drum-hit", 0.2);
+    let b = Budget::new(&Preset::default(), &clip, None).unwrap();
+    let (mut cands, _) = b.measure_all().unwrap();
+    let mut back: Vec<budget::Candidate> = serde_json::from_str(&serde_json::to_string(&cands).unwrap()).unwrap();
+    assert_eq!(back.len(), cands.len());
+    for (a, c) in back.iter().zip(&cands) {
+        assert_eq!(
+            (&a.id, a.bytes, a.clipped, a.current, &a.preset),
+            (&c.id, c.bytes, c.clipped, c.current, &c.preset)
+        );
+        for (x, y) in [(a.sqnr_db, c.sqnr_db), (a.a_weighted_snr_db, c.a_weighted_snr_db), (a.kbps, c.kbps)] {
+            assert!((x - y).abs() <= 1e-12 * y.abs().max(1.0), "{}: {x} read back as {y}", c.id);
+        }
+    }
+    for limit in [Limit::None, Limit::MaxBytes(8192), Limit::MaxKbps(64.0)] {
+        let json = serde_json::to_string(&limit).unwrap();
+        assert_eq!(serde_json::from_str::<Limit>(&json).unwrap(), limit, "{json}");
+    }
+    assert_eq!(serde_json::from_str::<Limit>(r#"{"kind":"max-bytes","value":8192}"#).unwrap(), Limit::MaxBytes(8192));
+    for score in [Score::AWeighted, Score::Sqnr] {
+        budget::mark_pareto(&mut cands, score);
+        budget::mark_pareto(&mut back, score);
+        assert_eq!(
+            back.iter().map(|c| c.pareto).collect::<Vec<_>>(),
+            cands.iter().map(|c| c.pareto).collect::<Vec<_>>()
+        );
+        let mut sizes: Vec<u64> = cands.iter().map(|c| c.bytes).collect();
+        sizes.sort_unstable();
+        for limit in std::iter::once(Limit::None).chain(sizes.into_iter().map(Limit::MaxBytes)) {
+            assert_eq!(budget::pick(&back, score, limit), budget::pick(&cands, score, limit), "{limit:?}");
+        }
+    }
+}

@@ -117,6 +117,53 @@ const handlers = {
   },
 };
 
+// The format budget (see www/js/budget-panel.js): its candidates measured one per task, each followed by a progress
+// message and a yield to the message queue, so that a render, a load or a cancel sent meanwhile is handled between
+// two candidates. A newer budget request, a cancel or a load ends the job; its request is answered "cancelled".
+let budgetJob = null;
+const budgetTick = new MessageChannel(); // a zero-delay yield (nested timers would be clamped to 4 ms each)
+budgetTick.port1.onmessage = (e) => { if (budgetJob && e.data === budgetJob.id) budgetStep(); };
+function budgetEnd(reason) {
+  if (budgetJob) reply('error', { id: budgetJob.id, request: 'budget', message: reason });
+  budgetJob = null;
+}
+function budgetStep() {
+  const job = budgetJob;
+  if (job.next < job.specs.length) {
+    try {
+      job.measured.push(JSON.parse(session.budgetMeasure(job.preset, job.next)));
+    } catch (err) {
+      job.skipped.push({ id: job.specs[job.next].id, reason: String(err && err.message ? err.message : err) });
+    }
+    job.next++;
+    reply('budget-progress', { token: job.token, done: job.next, total: job.specs.length });
+    if (job.next < job.specs.length) { budgetTick.port2.postMessage(job.id); return; }
+  }
+  budgetJob = null;
+  reply('budgeted', { id: job.id, source_rate: job.source_rate, duration_s: job.duration_s, candidates: job.measured,
+    skipped: job.skipped, ms: performance.now() - job.t0 });
+}
+Object.assign(handlers, {
+  budget(msg) {
+    budgetEnd('cancelled');
+    const t0 = performance.now();
+    const list = JSON.parse(session.budgetCandidates(msg.preset));
+    budgetJob = { id: msg.id, token: msg.token, preset: msg.preset, specs: list.candidates, source_rate: list.source_rate,
+      duration_s: list.duration_s, measured: [], skipped: [], next: 0, t0 };
+    reply('budget-progress', { token: msg.token, done: 0, total: list.candidates.length });
+    budgetTick.port2.postMessage(msg.id);
+  },
+  'budget-cancel'(msg) {
+    budgetEnd('cancelled');
+    reply('budget-cancelled', { id: msg.id });
+  },
+  'budget-pick'(msg) {
+    reply('budget-picked', { id: msg.id, ...JSON.parse(Session.budgetPick(msg.candidates, msg.score, msg.limit)) });
+  },
+});
+const loadHandler = handlers.load;
+handlers.load = (msg) => { budgetEnd('cancelled: a new sound'); loadHandler(msg); };
+
 self.onmessage = (e) => {
   const msg = e.data;
   try {

@@ -209,8 +209,8 @@ pub struct CandidateSpec {
     pub preset: Preset,
 }
 
-/// A measured candidate.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+/// A measured candidate. Read back by the page's boundary, which keeps the measured candidates on the JS side.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Candidate {
     /// See [`CandidateSpec::id`].
     pub id: String,
@@ -404,7 +404,7 @@ impl<'a> Budget<'a> {
 pub type Skip = (String, Error);
 
 /// A budget for one file.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 #[serde(rename_all = "kebab-case", tag = "kind", content = "value")]
 pub enum Limit {
     /// No limit: the best candidate.

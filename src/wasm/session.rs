@@ -2,6 +2,7 @@
 
 use super::js_err;
 use crate::analysis::{envelope, SpectrumAnalyzer, Window};
+use crate::budget::{self, Budget, Candidate, Limit, Score};
 use crate::prep::PrepParams;
 use crate::render::{self, Render};
 use crate::{demo, io, Clip, Preset};
@@ -273,6 +274,50 @@ impl Session {
     pub fn export_file(&self) -> Result<Vec<u8>, JsError> {
         let r = self.render.as_ref().ok_or_else(|| JsError::new("nothing rendered yet"))?;
         r.encode(&self.preset.export).map_err(js_err)
+    }
+
+    /// The format budget's candidates ([`crate::budget`]) for the loaded sound under `preset` (JSON), not yet
+    /// measured: JSON `{ source_rate, duration_s, candidates }`, each candidate a [`budget::CandidateSpec`] in the
+    /// order the CLI lists them. The page measures them one call at a time with [`Session::budget_measure`], so that
+    /// its worker can report progress and stop between two.
+    #[wasm_bindgen(js_name = budgetCandidates)]
+    pub fn budget_candidates(&self, preset: &str) -> Result<String, JsError> {
+        let preset = Preset::from_json(preset).map_err(js_err)?;
+        let b = Budget::new(&preset, &self.source, None).map_err(js_err)?;
+        let v = serde_json::json!({
+            "source_rate": b.source_rate(),
+            "duration_s": b.duration_s(),
+            "candidates": b.candidates().map_err(js_err)?,
+        });
+        Ok(v.to_string())
+    }
+
+    /// Renders and measures candidate `index` of [`Session::budget_candidates`] for the same preset: a
+    /// [`budget::Candidate`] as JSON. Throws, with the reason, for a candidate the sound cannot use (the CLI lists
+    /// those as `skipped`).
+    #[wasm_bindgen(js_name = budgetMeasure)]
+    pub fn budget_measure(&self, preset: &str, index: usize) -> Result<String, JsError> {
+        let preset = Preset::from_json(preset).map_err(js_err)?;
+        let b = Budget::new(&preset, &self.source, None).map_err(js_err)?;
+        let specs = b.candidates().map_err(js_err)?;
+        let spec = specs.get(index).ok_or_else(|| JsError::new(&format!("no candidate {index}")))?;
+        serde_json::to_string(&b.measure(spec).map_err(js_err)?).map_err(|e| JsError::new(&e.to_string()))
+    }
+
+    /// The Pareto front and the pick of measured candidates (a JSON array of [`budget::Candidate`], as
+    /// [`Session::budget_measure`] gave them, in list order) by `score` (`a_weighted_snr_db` or `sqnr_db`) within
+    /// `limit` (JSON as the CLI's `--json` writes it: `{"kind":"max-bytes","value":8192}`, `{"kind":"max-kbps",
+    /// "value":64}` or `{"kind":"none"}`): JSON `{ pareto: [bool per candidate], pick: index or null }`.
+    #[wasm_bindgen(js_name = budgetPick)]
+    pub fn budget_pick(candidates: &str, score: &str, limit: &str) -> Result<String, JsError> {
+        let bad = |what: &str, e: serde_json::Error| JsError::new(&format!("{what}: {e}"));
+        let mut candidates: Vec<Candidate> = serde_json::from_str(candidates).map_err(|e| bad("candidates", e))?;
+        let score: Score = serde_json::from_value(score.into()).map_err(|e| bad("score", e))?;
+        let limit: Limit = serde_json::from_str(limit).map_err(|e| bad("limit", e))?;
+        budget::mark_pareto(&mut candidates, score);
+        let pick = budget::pick(&candidates, score, limit);
+        let pareto: Vec<bool> = candidates.iter().map(|c| c.pareto).collect();
+        Ok(serde_json::json!({ "pareto": pareto, "pick": pick }).to_string())
     }
 }
 

@@ -89,6 +89,40 @@ test('axe-core finds no serious or critical problem: dark theme, preparation tab
   await s.context.close();
 });
 
+test('the formats by cost panel: reached and driven by keyboard, axe-core finds nothing serious, light and dark', async () => {
+  for (const colorScheme of ['light', 'dark']) {
+    const s = await openPage(browser, { colorScheme, viewport: { width: 1280, height: 720 } });
+    const { page } = s;
+    await tabTo(page, '#budget-toggle');
+    await page.keyboard.press('Enter');
+    assert.equal(await focused(page), 'budget-limit-kind', 'opening the panel puts the focus in it');
+    await page.waitForFunction(() => window.stairstepBudget.shown?.pareto, null, { timeout: 120_000 });
+    assert.deepEqual(await seriousViolations(page), [], `panel open (${colorScheme})`);
+    // The limit by keyboard: unit, then value; the pick is named; the table scrolls from the keyboard.
+    await page.keyboard.press('ArrowDown'); // no limit → bytes
+    await page.keyboard.press('ArrowDown'); // → kbit/s
+    await tabTo(page, '#budget-limit', { back: true });
+    await page.keyboard.type('400');
+    await page.keyboard.press('Enter');
+    await page.waitForFunction(() => window.stairstepBudget.shown?.limit?.value === 400);
+    assert.match(await page.textContent('#budget-pick'), /^Pick: .* bytes$/);
+    await tabTo(page, '#budget-sort-aw');
+    await page.keyboard.press('Enter');
+    assert.equal(await page.evaluate(() => document.getElementById('budget-sort-aw').closest('th').ariaSort),
+      'ascending', 'sorted by A-weighted SNR, and the focus stays on its header');
+    assert.equal(await focused(page), 'budget-sort-aw');
+    await tabTo(page, '#budget-table-wrap');
+    await tabTo(page, '#budget-apply');
+    assert.equal(await page.isEnabled('#budget-apply'), true);
+    assert.deepEqual(await seriousViolations(page), [], `pick shown (${colorScheme})`);
+    await tabTo(page, '#budget-close');
+    await page.keyboard.press('Enter');
+    assert.equal(await focused(page), 'budget-toggle', 'closing gives the focus back to the button that opened it');
+    assert.equal(await page.isVisible('#budget-panel'), false);
+    await s.context.close();
+  }
+});
+
 test('keyboard only: open a sound and a preset, edit a stage, play and stop, save a preset, download', async () => {
   const s = await openPage(browser, { viewport: { width: 1280, height: 720 } });
   const { page } = s;

@@ -20,6 +20,7 @@ import { drawMeters } from './views/meters.js';
 import { drawSweep, requestSweep } from './views/sweep.js';
 import { audio } from './audition.js';
 import { live } from './live-mode.js';
+import { setupBudget, budgetChainChanged, budgetRendered, budgetSourceLoaded } from './budget-panel.js';
 
 function drawAll() {
   drawPrepReport();
@@ -34,6 +35,12 @@ hooks.presetChanged = () => { record(); live.presetChanged(); };
 hooks.rendered = () => { markStageErrors(null); showStale(null); drawAll(); audio.refresh(); audio.applyMonitor(); };
 hooks.refused = (message) => { const text = markStageErrors(message); showStale(text); return text; };
 hooks.sourceLoaded = () => { audio.newSource(); requestSweep(); showLoopFields(); };
+// The format budget panel follows the chain (a change cancels its measurement), the renders and the sound.
+for (const [name, follow] of [['presetChanged', budgetChainChanged], ['rendered', budgetRendered],
+  ['sourceLoaded', budgetSourceLoaded]]) {
+  const before = hooks[name];
+  hooks[name] = (...args) => { const r = before(...args); follow(); return r; };
+}
 
 // While the core refuses a value, the views keep the last accepted render: they say so and are greyed.
 function showStale(text) {
@@ -143,6 +150,7 @@ async function main() {
   renderPrep();
   renderChain();
   renderExport();
+  setupBudget();
   $('download').onclick = doExport;
   $('open-file').onclick = () => $('file').click();
   $('file').onchange = (e) => { const f = e.target.files[0]; e.target.value = ''; if (f) openFile(f); };

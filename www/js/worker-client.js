@@ -14,12 +14,19 @@ export const wasmBytesLive = wasmBytes.slice(); // the worker takes the first co
 const workerUrl = URL.createObjectURL(new Blob([$('worker-src').textContent], { type: 'text/javascript' }));
 const worker = new Worker(workerUrl); // classic: module workers from blob: URLs fail on file:// pages
 const waiting = new Map();
+// Messages the worker sends on its own, not as the reply to a request (e.g. a long job's progress), by type.
+const listeners = {};
+export function onWorkerMessage(type, fn) { listeners[type] = fn; }
 let nextId = 1;
 
 worker.onmessage = (e) => {
   const msg = e.data;
   const w = waiting.get(msg.id);
-  if (!w) { if (msg.type === 'error') setStatus(msg.message, 'error'); return; }
+  if (!w) {
+    if (msg.type === 'error') setStatus(msg.message, 'error');
+    else listeners[msg.type]?.(msg);
+    return;
+  }
   waiting.delete(msg.id);
   if (msg.type === 'error') w.reject(new Error(msg.message)); else w.resolve(msg);
 };
