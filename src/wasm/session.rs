@@ -3,7 +3,7 @@
 use super::js_err;
 use crate::analysis::{envelope, SpectrumAnalyzer, Window};
 use crate::prep::PrepParams;
-use crate::render::{self, Render};
+use crate::render::{self, Render, Tap};
 use crate::{demo, io, Clip, Preset};
 use std::borrow::Cow;
 use wasm_bindgen::prelude::*;
@@ -26,6 +26,8 @@ pub struct Session {
     /// The preparation the chain's input was made with (the default, a no-op, before any render: the input is then
     /// the loaded sound).
     rendered_prep: PrepParams,
+    /// The signal after one stage of the latest render's chain ([`Session::tap`]); dropped by every render and load.
+    tap: Option<Tap>,
 }
 
 impl Default for Session {
@@ -48,6 +50,7 @@ impl Session {
             input_spectrum: None,
             headroom_cache: None,
             rendered_prep: PrepParams::default(),
+            tap: None,
         }
     }
 
@@ -93,6 +96,7 @@ impl Session {
     fn set_source(&mut self, clip: Clip) -> Result<String, JsError> {
         self.source = clip;
         self.render = None;
+        self.tap = None;
         self.rendered_prep = PrepParams::default();
         self.input_changed();
         Ok(self.describe())
@@ -135,6 +139,7 @@ impl Session {
         v["prep"] = serde_json::to_value(&r.prep).unwrap_or_default();
         v["export_loop"] = serde_json::to_value(r.export_meta.loops.first()).unwrap_or_default();
         self.render = Some(r);
+        self.tap = None;
         if self.rendered_prep != self.preset.prep {
             self.rendered_prep = self.preset.prep.clone();
             self.input_changed();
@@ -161,13 +166,18 @@ impl Session {
             ("input", Some(r)) => Ok(pick(r.input(&self.source), ch)),
             ("output", Some(r)) => Ok(pick(&r.audition, ch)),
             ("error", Some(r)) => Ok(Cow::Owned(r.error(&self.source, ch.min(r.audition.channel_count() - 1)))),
-            ("output" | "error", None) => Err(JsError::new("nothing rendered yet")),
+            ("tap", Some(_)) | ("tap-error", Some(_)) => {
+                let t = self.tap.as_ref().ok_or_else(|| JsError::new("no stage tapped"))?;
+                Ok(pick(if which == "tap" { &t.signal } else { &t.error }, ch))
+            }
+            ("output" | "error" | "tap" | "tap-error", None) => Err(JsError::new("nothing rendered yet")),
             _ => Err(JsError::new(&format!("unknown signal {which:?}: source, input, output or error"))),
         }
     }
 
     /// Samples of one channel of `source` (as loaded), `input` (what the chain sees: the prepared sound), `output`
-    /// (at the source rate) or `error` (output − input).
+    /// (at the source rate), `error` (output − input), `tap` or `tap-error` (after [`Session::tap`]: the signal after
+    /// the tapped stage, and the error that stage alone adds, both at the source rate).
     pub fn samples(&self, which: &str, channel: usize) -> Result<Vec<f32>, JsError> {
         self.signal(which, channel).map(Cow::into_owned)
     }
@@ -260,6 +270,45 @@ impl Session {
             _ => return Err(JsError::new(&format!("unknown signal {which:?}: source, input or output"))),
         };
         Ok(crate::analysis::loudness::integrated_loudness(clip))
+    }
+
+    /// Taps the latest render's chain after stage `stage` (an index into the preset's stages): the signal after it and
+    /// the error it alone adds ([`render::render_tap`]), kept for `tap` and `tap-error` until the next render or
+    /// load. Returns `{"stage": i, "sqnr_db": x | null}` (the tap's SQNR at the source rate).
+    pub fn tap(&mut self, stage: usize) -> Result<String, JsError> {
+        if self.render.is_none() {
+            return Err(JsError::new("nothing rendered yet"));
+        }
+        let t = render::render_tap(&self.preset, &self.source, stage).map_err(js_err)?;
+        let v = serde_json::json!({ "stage": t.stage, "sqnr_db": t.sqnr_db });
+        self.tap = Some(t);
+        Ok(v.to_string())
+    }
+
+    /// The spectrogram of all channels of `which` (as [`Session::samples`] names them) over frames `start..end`, for
+    /// a view `columns` × `rows` pixels: [`crate::analysis::spectrogram::view_spectrogram`] with FFT size `size`,
+    /// resampled to `rows` rows from `lo_hz` (row 0) to `hi_hz` on a log (`log`) or linear axis. Levels in dBFS,
+    /// `frames × rows`, frame-major (frames: at most `columns`, tiling the range evenly).
+    #[allow(clippy::too_many_arguments)]
+    pub fn spectrogram(
+        &self,
+        which: &str,
+        start: usize,
+        end: usize,
+        size: usize,
+        columns: usize,
+        rows: usize,
+        log: bool,
+        lo_hz: f64,
+        hi_hz: f64,
+    ) -> Result<Vec<f32>, JsError> {
+        use crate::analysis::spectrogram::{view_spectrogram, FrequencyScale};
+        let chans: Vec<Cow<'_, [f32]>> =
+            (0..self.channels_of(which)).map(|c| self.signal(which, c)).collect::<Result<_, _>>()?;
+        let rate = self.render.as_ref().map_or(self.source.sample_rate, |r| r.audition.sample_rate);
+        let s = view_spectrogram(&chans, rate, start, end, size, columns).map_err(js_err)?;
+        let scale = if log { FrequencyScale::Log } else { FrequencyScale::Linear };
+        Ok(s.rows(rows, scale, lo_hz, hi_hz))
     }
 
     /// The usual file extension of the preset's export format (no dot).
