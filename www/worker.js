@@ -111,6 +111,18 @@ const handlers = {
     reply('spectrogram', { id: msg.id, db, tapped, ms: performance.now() - t0 }, [db.buffer]);
   },
 
+  // The chain's static transfer curve (up to stage msg.upto) over msg.lo … msg.hi, and a quantizing stage's code
+  // histogram (see www/js/views/transfer.js and codes.js).
+  transfer(msg) {
+    const c = JSON.parse(session.transfer(msg.upto, msg.lo, msg.hi, msg.points));
+    const output = Float32Array.from(c.output);
+    reply('transfer', { id: msg.id, output, levels: c.levels, applied: c.applied, notes: c.notes }, [output.buffer]);
+  },
+
+  codes(msg) {
+    reply('codes', { id: msg.id, histogram: JSON.parse(session.codes(msg.stage, msg.bins)) });
+  },
+
   // The size of the module's memory (it only grows: the high-water mark of everything so far), in bytes.
   memory(msg) {
     reply('memory', { id: msg.id, wasmBytes: wasm.memory.buffer.byteLength });

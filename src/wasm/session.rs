@@ -311,6 +311,38 @@ impl Session {
         Ok(s.rows(rows, scale, lo_hz, hi_hz))
     }
 
+    /// The static input → output curve ([`crate::analysis::transfer::transfer_curve`]) of the preset's active stages
+    /// up to stage `upto` (an index; past the end: all of them) over `lo … hi` with `points` points, as JSON: the
+    /// curve's `output` (its `input` is evenly spaced from `lo` to `hi`), `levels`, `applied` and `notes`.
+    pub fn transfer(&self, upto: usize, lo: f64, hi: f64, points: usize) -> Result<String, JsError> {
+        let active = self.preset.stages.iter().enumerate().take(upto.saturating_add(1)).filter(|(_, s)| !s.bypass);
+        let c = crate::analysis::transfer::transfer_curve(active.map(|(i, s)| (i, &s.stage)), lo, hi, points)
+            .map_err(js_err)?;
+        let v = serde_json::json!({ "output": c.output, "levels": c.levels, "applied": c.applied, "notes": c.notes });
+        Ok(v.to_string())
+    }
+
+    /// The histogram of the codes that quantizing stage `stage` (an index) emitted in the latest render, in at most
+    /// `bins` bins: [`crate::analysis::codes::CodeHistogram`] as JSON. Counted on the stage's output at its own rate:
+    /// the tap's when that stage is tapped, else a tap computed for the purpose (not kept).
+    pub fn codes(&self, stage: usize, bins: usize) -> Result<String, JsError> {
+        if self.render.is_none() {
+            return Err(JsError::new("nothing rendered yet"));
+        }
+        let slot = self.preset.stages.get(stage).ok_or_else(|| JsError::new(&format!("no stage {stage}")))?;
+        let owned;
+        let tap = match &self.tap {
+            Some(t) if t.stage == stage => t,
+            _ => {
+                owned = render::render_tap(&self.preset, &self.source, stage).map_err(js_err)?;
+                &owned
+            }
+        };
+        let h =
+            crate::analysis::codes::code_histogram(&slot.stage, &tap.at_stage_rate.channels, bins).map_err(js_err)?;
+        serde_json::to_string(&h).map_err(|e| JsError::new(&e.to_string()))
+    }
+
     /// The usual file extension of the preset's export format (no dot).
     #[wasm_bindgen(js_name = exportExtension)]
     pub fn export_extension(&self) -> String {

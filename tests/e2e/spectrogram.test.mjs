@@ -272,6 +272,43 @@ test('the spectrogram of a 10 s stereo clip: time to compute and draw, after the
   for (const v of Object.values(result)) assert.ok(v.draw < 100, `drawing took ${v.draw} ms`);
 });
 
+test('the transfer curve is the chain\'s staircase and zooms; the code histogram counts what the report counts', async () => {
+  const { page } = s;
+  await renderAndSpectrogram(page, () => page.selectOption('#demo', 'chime-loop'));
+  await usePreset(page, { format: 'stairstep-preset', version: 1, name: 'steps', stages: [
+    { kind: 'gain', gain_db: 6, overflow: 'clip' }, { kind: 'rate', rate_hz: 11025, mode: 'hold' }, { kind: 'quantize', bits: 3 }] });
+  const transferred = () => page.waitForFunction(() => window.stairstepTransfer.data !== null);
+  await page.selectOption('#lower-view', 'transfer');
+  await transferred();
+  let d = await page.evaluate(() => window.stairstepTransfer.data);
+  // A 3-bit mid-tread quantizer: 8 levels over the whole range; the rate stage is passed through, with a note.
+  assert.equal(d.levels, 8);
+  assert.deepEqual(d.applied, [0, 2]);
+  assert.match(await page.textContent('#tf-notes'), /stage 2 \(rate\)/);
+  // Zoomed in four times (from the keyboard) around 0: fewer steps in view, recomputed for the range.
+  await page.focus('#transfer');
+  for (let i = 0; i < 4; i++) {
+    const before = await page.evaluate(() => window.stairstepTransfer.data);
+    await page.keyboard.press('+');
+    await page.waitForFunction((b) => window.stairstepTransfer.data !== b && window.stairstepTransfer.data.hi - window.stairstepTransfer.data.lo < b.hi - b.lo, before);
+  }
+  d = await page.evaluate(() => window.stairstepTransfer.data);
+  assert.ok(d.hi - d.lo <= 2 / 16 + 1e-9 && d.levels < 8, `${d.lo} … ${d.hi}: ${d.levels} levels`);
+  await screenshot(page, 'spectro-transfer');
+  // The code histogram of the quantizer: as many codes as the report's per-stage figure.
+  await page.selectOption('#lower-view', 'codes');
+  await page.waitForFunction(() => window.stairstepCodes.data !== null);
+  const h = await page.evaluate(() => window.stairstepCodes.data);
+  const st = (await page.evaluate(() => window.stairstep.report.stages))[2];
+  assert.equal(h.stage, 2);
+  assert.equal(h.codes_used, st.codes_used);
+  assert.equal(h.code_space, 8);
+  assert.equal(h.counts.reduce((a, b) => a + b, 0), h.samples);
+  assert.match(await page.textContent('#codes-note'), new RegExp(`${st.codes_used} of 2³ codes used`));
+  await screenshot(page, 'spectro-codes');
+  await page.selectOption('#lower-view', 'spectrogram');
+});
+
 test('screenshots: original, processed and error on log and linear axes, and a tapped stage, at 1280 and 700 px wide', async () => {
   for (const viewport of [{ width: 1280, height: 800 }, { width: 700, height: 800 }]) {
     const o = await openPage(browser, { viewport });

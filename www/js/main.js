@@ -17,6 +17,8 @@ import { requestRender } from './session.js';
 import { drawWave, setupWaveform, refreshEnvelope, tick, showLoopFields, viewHooks } from './views/waveform.js';
 import { setupSpectrogram, requestSpectrogram, scheduleSpectrogram, drawSpectrogram, updateSpectrogramLabels }
   from './views/spectrogram.js';
+import { setupTransfer, requestTransfer, drawTransfer } from './views/transfer.js';
+import { requestCodes, drawCodes } from './views/codes.js';
 import { drawSpectrum, spectrumReadout } from './views/spectrum.js';
 import { drawMeters } from './views/meters.js';
 import { drawSweep, requestSweep } from './views/sweep.js';
@@ -38,6 +40,8 @@ hooks.rendered = () => {
   showStageFigures();
   updateSpectrogramLabels();
   scheduleSpectrogram(); // after the main views are painted, never before
+  requestTransfer(); // these two only when shown
+  requestCodes();
 };
 viewHooks.changed = requestSpectrogram; // zoom and scroll are shared with the waveform
 hooks.refused = (message) => { const text = markStageErrors(message); showStale(text); return text; };
@@ -55,12 +59,16 @@ audio.onstart = tick;
 function setupViews() {
   setupWaveform();
   setupSpectrogram();
-  // The lower view: the spectrogram or the SQNR sweep, in one place.
+  setupTransfer();
+  // The lower view: the spectrogram, the SQNR sweep, the transfer curve or the code histogram, in one place.
   $('lower-view').onchange = () => {
     const v = $('lower-view').value;
-    document.querySelectorAll('.fig-lower .for-spectrogram, #spectrogram').forEach((e) => { e.hidden = v !== 'spectrogram'; });
-    document.querySelectorAll('.fig-lower .for-sweep, #sweep').forEach((e) => { e.hidden = v !== 'sweep'; });
-    if (v === 'sweep') drawSweep(); else { drawSpectrogram(); requestSpectrogram(); }
+    for (const k of ['spectrogram', 'sweep', 'transfer', 'codes']) {
+      document.querySelectorAll(`.fig-lower .for-${k}, #${k}`).forEach((e) => { e.hidden = v !== k; });
+    }
+    if (v === 'sweep') drawSweep();
+    else if (v === 'transfer') { drawTransfer(); requestTransfer(); } else if (v === 'codes') { drawCodes(); requestCodes(); }
+    else { drawSpectrogram(); requestSpectrogram(); }
   };
   $('spectrum').addEventListener('pointermove', spectrumReadout);
   // The views share the window's height, so they follow any change of their own size (window, meters wrapping).
@@ -68,7 +76,8 @@ function setupViews() {
     for (const e of entries) {
       const id = e.target.firstElementChild.id;
       if (id === 'wave') refreshEnvelope(); else if (id === 'spectrum') drawSpectrum();
-      else if (id === 'spectrogram') { drawSpectrogram(); requestSpectrogram(); drawSweep(); } else drawSweep();
+      else if (id === 'spectrogram') { drawSpectrogram(); requestSpectrogram(); drawSweep(); drawTransfer(); drawCodes(); }
+      else drawSweep();
     }
   });
   document.querySelectorAll('.views .plot').forEach((p) => sized.observe(p));
