@@ -25,12 +25,16 @@ const MAX_WAVE_LANES = 8;
 let renderedChannels = 1;
 // The chain input's loudness (LUFS), kept for the preparation (as JSON) it was measured with; dropped on a load.
 let inputLoudness = null;
+// The stage tapped in the latest render (its index), or null: then `output` and `error` below mean the signal after
+// that stage and the error it alone adds (the core's `tap` and `tap-error`).
+let tapped = null;
+const signalName = (which) => (tapped === null ? which : { output: 'tap', error: 'tap-error' }[which] ?? which);
 function envelopes(v) {
   const n = Math.max(1, Math.min(renderedChannels, MAX_WAVE_LANES));
   const env = { input: [], output: [] };
   for (let c = 0; c < n; c++) {
     env.input.push(session.envelope('input', c, v.start, v.end, v.columns));
-    env.output.push(session.envelope('output', c, v.start, v.end, v.columns));
+    env.output.push(session.envelope(signalName('output'), c, v.start, v.end, v.columns));
   }
   return env;
 }
@@ -57,7 +61,7 @@ const handlers = {
   // sanitizes its input), for listening to the error alone.
   error(msg) {
     const channels = [];
-    for (let c = 0; c < renderedChannels; c++) channels.push(session.errorSignal(c));
+    for (let c = 0; c < renderedChannels; c++) channels.push(session.samples(signalName('error'), c));
     reply('error-signal', { id: msg.id, channels }, channels.map((a) => a.buffer));
   },
 
@@ -65,13 +69,20 @@ const handlers = {
     const t0 = performance.now();
     session.setPreset(msg.preset);
     const report = JSON.parse(session.render());
+    // A tapped stage (msg.tap, an index): the views and the audition show the signal after it.
+    tapped = null;
+    let tap = null;
+    if (msg.tap !== null && msg.tap !== undefined && msg.tap < report.stages.length) {
+      tap = JSON.parse(session.tap(msg.tap));
+      tapped = msg.tap;
+    }
     const v = msg.view;
     const spectra = {};
-    for (const which of ['input', 'output', 'error']) spectra[which] = session.spectrum(which, v.fftSize, v.window);
+    for (const which of ['input', 'output', 'error']) spectra[which] = session.spectrum(signalName(which), v.fftSize, v.window);
     renderedChannels = report.channels;
     const env = envelopes(v);
     const output = [];
-    for (let c = 0; c < report.channels; c++) output.push(session.samples('output', c));
+    for (let c = 0; c < report.channels; c++) output.push(session.samples(signalName('output'), c));
     const preset = JSON.parse(msg.preset);
     const q = preset.stages.find((st) => st.kind === 'quantize' && !st.bypass && !st.levels);
     const headroom = JSON.parse(session.headroom(q ? (q.bits ?? 8) : 16, 0));
@@ -88,7 +99,28 @@ const handlers = {
     const ms = performance.now() - t0;
     const transfer = [...Object.values(spectra), ...env.input, ...env.output, ...output].map((a) => a.buffer);
     if (file) transfer.push(file.buffer);
-    reply('rendered', { id: msg.id, report, headroom, spectra, env, output, file, loudness, ms }, transfer);
+    reply('rendered', { id: msg.id, report, headroom, spectra, env, output, file, loudness, ms, tap }, transfer);
+  },
+
+  // The spectrogram of the view window at the canvas's resolution (see www/js/views/spectrogram.js): frames × rows
+  // dBFS, transferred.
+  spectrogram(msg) {
+    const t0 = performance.now();
+    const db = session.spectrogram(signalName(msg.which), msg.start, msg.end, msg.size, msg.columns, msg.rows, msg.log,
+      msg.lo, msg.hi);
+    reply('spectrogram', { id: msg.id, db, tapped, ms: performance.now() - t0 }, [db.buffer]);
+  },
+
+  // The chain's static transfer curve (up to stage msg.upto) over msg.lo … msg.hi, and a quantizing stage's code
+  // histogram (see www/js/views/transfer.js and codes.js).
+  transfer(msg) {
+    const c = JSON.parse(session.transfer(msg.upto, msg.lo, msg.hi, msg.points));
+    const output = Float32Array.from(c.output);
+    reply('transfer', { id: msg.id, output, levels: c.levels, applied: c.applied, notes: c.notes }, [output.buffer]);
+  },
+
+  codes(msg) {
+    reply('codes', { id: msg.id, histogram: JSON.parse(session.codes(msg.stage, msg.bins)) });
   },
 
   // The size of the module's memory (it only grows: the high-water mark of everything so far), in bytes.
@@ -113,6 +145,7 @@ const handlers = {
     session.setPreset(msg.preset);
     session.render();
     const file = session.exportFile();
+    if (tapped !== null) session.tap(tapped); // the render dropped the tap the views show
     reply('exported', { id: msg.id, file, extension: session.exportExtension() }, [file.buffer]);
   },
 };

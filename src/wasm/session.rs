@@ -4,7 +4,7 @@ use super::js_err;
 use crate::analysis::{envelope, SpectrumAnalyzer, Window};
 use crate::budget::{self, Budget, Candidate, Limit, Score};
 use crate::prep::PrepParams;
-use crate::render::{self, Render};
+use crate::render::{self, Render, Tap};
 use crate::{demo, io, Clip, Preset};
 use std::borrow::Cow;
 use wasm_bindgen::prelude::*;
@@ -27,6 +27,8 @@ pub struct Session {
     /// The preparation the chain's input was made with (the default, a no-op, before any render: the input is then
     /// the loaded sound).
     rendered_prep: PrepParams,
+    /// The signal after one stage of the latest render's chain ([`Session::tap`]); dropped by every render and load.
+    tap: Option<Tap>,
 }
 
 impl Default for Session {
@@ -49,6 +51,7 @@ impl Session {
             input_spectrum: None,
             headroom_cache: None,
             rendered_prep: PrepParams::default(),
+            tap: None,
         }
     }
 
@@ -94,6 +97,7 @@ impl Session {
     fn set_source(&mut self, clip: Clip) -> Result<String, JsError> {
         self.source = clip;
         self.render = None;
+        self.tap = None;
         self.rendered_prep = PrepParams::default();
         self.input_changed();
         Ok(self.describe())
@@ -136,6 +140,7 @@ impl Session {
         v["prep"] = serde_json::to_value(&r.prep).unwrap_or_default();
         v["export_loop"] = serde_json::to_value(r.export_meta.loops.first()).unwrap_or_default();
         self.render = Some(r);
+        self.tap = None;
         if self.rendered_prep != self.preset.prep {
             self.rendered_prep = self.preset.prep.clone();
             self.input_changed();
@@ -162,13 +167,18 @@ impl Session {
             ("input", Some(r)) => Ok(pick(r.input(&self.source), ch)),
             ("output", Some(r)) => Ok(pick(&r.audition, ch)),
             ("error", Some(r)) => Ok(Cow::Owned(r.error(&self.source, ch.min(r.audition.channel_count() - 1)))),
-            ("output" | "error", None) => Err(JsError::new("nothing rendered yet")),
+            ("tap", Some(_)) | ("tap-error", Some(_)) => {
+                let t = self.tap.as_ref().ok_or_else(|| JsError::new("no stage tapped"))?;
+                Ok(pick(if which == "tap" { &t.signal } else { &t.error }, ch))
+            }
+            ("output" | "error" | "tap" | "tap-error", None) => Err(JsError::new("nothing rendered yet")),
             _ => Err(JsError::new(&format!("unknown signal {which:?}: source, input, output or error"))),
         }
     }
 
     /// Samples of one channel of `source` (as loaded), `input` (what the chain sees: the prepared sound), `output`
-    /// (at the source rate) or `error` (output − input).
+    /// (at the source rate), `error` (output − input), `tap` or `tap-error` (after [`Session::tap`]: the signal after
+    /// the tapped stage, and the error that stage alone adds, both at the source rate).
     pub fn samples(&self, which: &str, channel: usize) -> Result<Vec<f32>, JsError> {
         self.signal(which, channel).map(Cow::into_owned)
     }
@@ -261,6 +271,77 @@ impl Session {
             _ => return Err(JsError::new(&format!("unknown signal {which:?}: source, input or output"))),
         };
         Ok(crate::analysis::loudness::integrated_loudness(clip))
+    }
+
+    /// Taps the latest render's chain after stage `stage` (an index into the preset's stages): the signal after it and
+    /// the error it alone adds ([`render::render_tap`]), kept for `tap` and `tap-error` until the next render or
+    /// load. Returns `{"stage": i, "sqnr_db": x | null}` (the tap's SQNR at the source rate).
+    pub fn tap(&mut self, stage: usize) -> Result<String, JsError> {
+        if self.render.is_none() {
+            return Err(JsError::new("nothing rendered yet"));
+        }
+        let t = render::render_tap(&self.preset, &self.source, stage).map_err(js_err)?;
+        let v = serde_json::json!({ "stage": t.stage, "sqnr_db": t.sqnr_db });
+        self.tap = Some(t);
+        Ok(v.to_string())
+    }
+
+    /// The spectrogram of all channels of `which` (as [`Session::samples`] names them) over frames `start..end`, for
+    /// a view `columns` × `rows` pixels: [`crate::analysis::spectrogram::view_spectrogram`] with FFT size `size`,
+    /// resampled to `rows` rows from `lo_hz` (row 0) to `hi_hz` on a log (`log`) or linear axis. Levels in dBFS,
+    /// `frames × rows`, frame-major (frames: at most `columns`, tiling the range evenly).
+    #[allow(clippy::too_many_arguments)]
+    pub fn spectrogram(
+        &self,
+        which: &str,
+        start: usize,
+        end: usize,
+        size: usize,
+        columns: usize,
+        rows: usize,
+        log: bool,
+        lo_hz: f64,
+        hi_hz: f64,
+    ) -> Result<Vec<f32>, JsError> {
+        use crate::analysis::spectrogram::{view_spectrogram, FrequencyScale};
+        let chans: Vec<Cow<'_, [f32]>> =
+            (0..self.channels_of(which)).map(|c| self.signal(which, c)).collect::<Result<_, _>>()?;
+        let rate = self.render.as_ref().map_or(self.source.sample_rate, |r| r.audition.sample_rate);
+        let s = view_spectrogram(&chans, rate, start, end, size, columns).map_err(js_err)?;
+        let scale = if log { FrequencyScale::Log } else { FrequencyScale::Linear };
+        Ok(s.rows(rows, scale, lo_hz, hi_hz))
+    }
+
+    /// The static input → output curve ([`crate::analysis::transfer::transfer_curve`]) of the preset's active stages
+    /// up to stage `upto` (an index; past the end: all of them) over `lo … hi` with `points` points, as JSON: the
+    /// curve's `output` (its `input` is evenly spaced from `lo` to `hi`), `levels`, `applied` and `notes`.
+    pub fn transfer(&self, upto: usize, lo: f64, hi: f64, points: usize) -> Result<String, JsError> {
+        let active = self.preset.stages.iter().enumerate().take(upto.saturating_add(1)).filter(|(_, s)| !s.bypass);
+        let c = crate::analysis::transfer::transfer_curve(active.map(|(i, s)| (i, &s.stage)), lo, hi, points)
+            .map_err(js_err)?;
+        let v = serde_json::json!({ "output": c.output, "levels": c.levels, "applied": c.applied, "notes": c.notes });
+        Ok(v.to_string())
+    }
+
+    /// The histogram of the codes that quantizing stage `stage` (an index) emitted in the latest render, in at most
+    /// `bins` bins: [`crate::analysis::codes::CodeHistogram`] as JSON. Counted on the stage's output at its own rate:
+    /// the tap's when that stage is tapped, else a tap computed for the purpose (not kept).
+    pub fn codes(&self, stage: usize, bins: usize) -> Result<String, JsError> {
+        if self.render.is_none() {
+            return Err(JsError::new("nothing rendered yet"));
+        }
+        let slot = self.preset.stages.get(stage).ok_or_else(|| JsError::new(&format!("no stage {stage}")))?;
+        let owned;
+        let tap = match &self.tap {
+            Some(t) if t.stage == stage => t,
+            _ => {
+                owned = render::render_tap(&self.preset, &self.source, stage).map_err(js_err)?;
+                &owned
+            }
+        };
+        let h =
+            crate::analysis::codes::code_histogram(&slot.stage, &tap.at_stage_rate.channels, bins).map_err(js_err)?;
+        serde_json::to_string(&h).map_err(|e| JsError::new(&e.to_string()))
     }
 
     /// The usual file extension of the preset's export format (no dot).

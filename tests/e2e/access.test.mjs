@@ -52,7 +52,7 @@ for (const [width, height] of [[1280, 720], [800, 720]]) {
         view: [innerWidth, innerHeight],
         status: box('status'),
         boxes: Object.fromEntries(['download', 'export', 'chain', 'add-stage', 'preset-load', 'meters', 'wave', 'spectrum',
-          'sweep', 'play', 'open-file', 'monitor'].map((id) => [id, box(id)])),
+          'spectrogram', 'lower-view', 'play', 'open-file', 'monitor'].map((id) => [id, box(id)])),
       };
     });
     assert.ok(layout.scroll[0] <= width && layout.scroll[1] <= height, `page scrolls: ${layout.scroll}`);
@@ -66,6 +66,15 @@ for (const [width, height] of [[1280, 720], [800, 720]]) {
     assert.ok(layout.boxes.spectrum.bottom - layout.boxes.spectrum.top >= 90);
     await screenshot(page, `access-${width}x${height}`);
     assert.deepEqual(await seriousViolations(page), []);
+    // The lower view's other choice, the SQNR sweep, takes the spectrogram's place.
+    await page.selectOption('#lower-view', 'sweep');
+    const sweep = await page.evaluate(() => { const r = document.getElementById('sweep').getBoundingClientRect(); return { top: r.top, bottom: r.bottom, right: r.right }; });
+    assert.ok(sweep.bottom - sweep.top > 10 && sweep.right <= width && sweep.bottom <= layout.status.top, `sweep ${JSON.stringify(sweep)}`);
+    assert.deepEqual(await seriousViolations(page), [], 'the sweep shown');
+    await page.selectOption('#lower-view', 'spectrogram');
+    // A stage tapped: its own figures in the meters.
+    await afterRender(page, () => page.click('#tap-0'));
+    assert.deepEqual(await seriousViolations(page), [], 'a stage tapped');
     assert.deepEqual(s.offline, []);
     assert.deepEqual(s.errors, []);
     await s.context.close();

@@ -6,6 +6,7 @@ import { state } from './state.js';
 import { requestRender } from './session.js';
 import { fieldControl } from './fields.js';
 import { plainError } from './messages.js';
+import { stageFigures } from './views/meters.js';
 
 // Redraws the stage cards. `focus` says which control gets the focus afterwards (a redraw replaces them all):
 // { index, control: 'up' | 'down' | 'bypass' | 'card' }, or a field id for fields (see fields.js).
@@ -13,6 +14,7 @@ export function renderChain(focus = null) {
   const box = $('chain');
   box.replaceChildren();
   const n = state.preset.stages.length;
+  if (state.tap !== null && state.tap >= n) state.tap = null;
   state.preset.stages.forEach((stage, i) => {
     const schema = STAGES[stage.kind];
     const label = schema ? schema.label : stage.kind;
@@ -29,6 +31,9 @@ export function renderChain(focus = null) {
           renderChain({ index: i, control: 'bypass' });
           requestRender();
         } }), 'Bypass'),
+      el('button', { type: 'button', id: `tap-${i}`, class: 'tap', 'aria-pressed': String(state.tap === i),
+        title: 'Tap: see and hear the signal after this stage, and the error this stage alone adds',
+        'aria-label': `Tap after stage ${i + 1}`, onclick: () => setTap(state.tap === i ? null : i) }, 'Tap'),
       el('button', { type: 'button', id: `up-${i}`, title: 'Move up', 'aria-label': `Move stage ${i + 1} up`,
         disabled: i === 0, onclick: () => moveStage(i, -1) }, '↑'),
       el('button', { type: 'button', id: `down-${i}`, title: 'Move down', 'aria-label': `Move stage ${i + 1} down`,
@@ -40,12 +45,36 @@ export function renderChain(focus = null) {
     if (mixApplies(stage)) fields.push(MIX_FIELD);
     const body = el('div', { class: 'stage-body' },
       ...fields.map((f) => fieldControl(stage, f, changed, `f-${i}-${f.key}`)));
-    box.append(el('div', { class: `stage${stage.bypass ? ' bypassed' : ''}`, 'data-kind': stage.kind, id: `stage-${i}`,
-      role: 'group', 'aria-label': `Stage ${i + 1}, ${label}`, tabindex: -1 }, head, body,
+    box.append(el('div', { class: `stage${stage.bypass ? ' bypassed' : ''}${state.tap === i ? ' tapped' : ''}`,
+      'data-kind': stage.kind, id: `stage-${i}`, role: 'group', 'aria-label': `Stage ${i + 1}, ${label}`, tabindex: -1 },
+    head, body, el('p', { class: 'stage-figures dim', id: `stage-${i}-figures` }),
     el('p', { class: 'stage-error', id: `stage-${i}-error` })));
   });
   if (focus) focusAfterRedraw(focus);
   renderChainMix();
+  showStageFigures();
+}
+
+// Taps the chain after stage i (null: the whole chain): the views, the meters and the audition follow.
+export function setTap(i) {
+  state.tap = i;
+  state.preset.stages.forEach((_, k) => {
+    $(`tap-${k}`)?.setAttribute('aria-pressed', String(k === i));
+    $(`stage-${k}`)?.classList.toggle('tapped', k === i);
+  });
+  setStatus(i === null ? 'Showing the whole chain.' : `Showing and playing the signal after stage ${i + 1} ` +
+    `(${STAGES[state.preset.stages[i].kind]?.label ?? state.preset.stages[i].kind}) and the error it alone adds.`);
+  requestRender();
+}
+
+// Each stage's own figures from the latest render (the report's `stages`), in one line under its fields.
+export function showStageFigures() {
+  const r = state.report;
+  if (!r || !r.stages || state.renderedPreset !== JSON.stringify(state.preset)) return;
+  r.stages.forEach((st, i) => {
+    const p = $(`stage-${i}-figures`);
+    if (p) p.textContent = stageFigures(st);
+  });
 }
 
 // The chain's Mix (the preset's `mix`): the whole chain's output blended with its input.
@@ -70,12 +99,14 @@ function focusAfterRedraw({ index, control }) {
 function moveStage(i, d) {
   const s = state.preset.stages;
   [s[i], s[i + d]] = [s[i + d], s[i]];
+  if (state.tap === i) state.tap = i + d; else if (state.tap === i + d) state.tap = i;
   renderChain({ index: i + d, control: d < 0 ? 'up' : 'down' });
   requestRender();
 }
 
 function removeStage(i) {
   const [gone] = state.preset.stages.splice(i, 1);
+  if (state.tap === i) state.tap = null; else if (state.tap !== null && state.tap > i) state.tap -= 1;
   renderChain({ index: i, control: 'card' });
   setStatus(`Removed stage ${i + 1} (${STAGES[gone.kind]?.label ?? gone.kind}).`);
   requestRender();

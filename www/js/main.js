@@ -6,7 +6,7 @@ import { $, el, setStatus } from './util.js';
 import { state } from './state.js';
 import { call, wasmBytes } from './worker-client.js';
 import { hooks, loadSource } from './session.js';
-import { renderChain, markStageErrors, setupStageTools, fillAddMenu } from './chain-editor.js';
+import { renderChain, markStageErrors, setupStageTools, fillAddMenu, showStageFigures } from './chain-editor.js';
 import { useCoreSchema } from './schema.js';
 import { renderPrep, drawPrepReport } from './prep-panel.js';
 import { renderExport, drawBudget, doExport } from './export.js';
@@ -14,7 +14,11 @@ import { setupPresetTools, setBuiltinPresets } from './presets.js';
 import { setupHistory, record } from './history.js';
 import { wavSize, refuseIfTooLong } from './limits.js';
 import { requestRender } from './session.js';
-import { drawWave, setupWaveform, refreshEnvelope, tick, showLoopFields } from './views/waveform.js';
+import { drawWave, setupWaveform, refreshEnvelope, tick, showLoopFields, viewHooks } from './views/waveform.js';
+import { setupSpectrogram, requestSpectrogram, scheduleSpectrogram, drawSpectrogram, updateSpectrogramLabels }
+  from './views/spectrogram.js';
+import { setupTransfer, requestTransfer, drawTransfer } from './views/transfer.js';
+import { requestCodes, drawCodes } from './views/codes.js';
 import { drawSpectrum, spectrumReadout } from './views/spectrum.js';
 import { drawMeters } from './views/meters.js';
 import { drawSweep, requestSweep } from './views/sweep.js';
@@ -32,7 +36,15 @@ function drawAll() {
 }
 
 hooks.presetChanged = () => { record(); live.presetChanged(); };
-hooks.rendered = () => { markStageErrors(null); showStale(null); drawAll(); audio.refresh(); audio.applyMonitor(); };
+hooks.rendered = () => {
+  markStageErrors(null); showStale(null); drawAll(); audio.refresh(); audio.applyMonitor();
+  showStageFigures();
+  updateSpectrogramLabels();
+  scheduleSpectrogram(); // after the main views are painted, never before
+  requestTransfer(); // these two only when shown
+  requestCodes();
+};
+viewHooks.changed = requestSpectrogram; // zoom and scroll are shared with the waveform
 hooks.refused = (message) => { const text = markStageErrors(message); showStale(text); return text; };
 hooks.sourceLoaded = () => { audio.newSource(); requestSweep(); showLoopFields(); };
 // The format budget panel follows the chain (a change cancels its measurement), the renders and the sound.
@@ -53,12 +65,26 @@ audio.onstart = tick;
 
 function setupViews() {
   setupWaveform();
+  setupSpectrogram();
+  setupTransfer();
+  // The lower view: the spectrogram, the SQNR sweep, the transfer curve or the code histogram, in one place.
+  $('lower-view').onchange = () => {
+    const v = $('lower-view').value;
+    for (const k of ['spectrogram', 'sweep', 'transfer', 'codes']) {
+      document.querySelectorAll(`.fig-lower .for-${k}, #${k}`).forEach((e) => { e.hidden = v !== k; });
+    }
+    if (v === 'sweep') drawSweep();
+    else if (v === 'transfer') { drawTransfer(); requestTransfer(); } else if (v === 'codes') { drawCodes(); requestCodes(); }
+    else { drawSpectrogram(); requestSpectrogram(); }
+  };
   $('spectrum').addEventListener('pointermove', spectrumReadout);
   // The views share the window's height, so they follow any change of their own size (window, meters wrapping).
   const sized = new ResizeObserver((entries) => {
     for (const e of entries) {
       const id = e.target.firstElementChild.id;
-      if (id === 'wave') refreshEnvelope(); else if (id === 'spectrum') drawSpectrum(); else drawSweep();
+      if (id === 'wave') refreshEnvelope(); else if (id === 'spectrum') drawSpectrum();
+      else if (id === 'spectrogram') { drawSpectrogram(); requestSpectrogram(); drawSweep(); drawTransfer(); drawCodes(); }
+      else drawSweep();
     }
   });
   document.querySelectorAll('.views .plot').forEach((p) => sized.observe(p));

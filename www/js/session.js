@@ -21,7 +21,7 @@ export function requestRender() {
   pendingRender = false;
   const view = { ...viewRange(), columns: waveColumns(), fftSize: state.fftSize, window: state.window };
   const preset = JSON.stringify(state.preset);
-  call('render', { preset, view, loudness: state.matchLoudness })
+  call('render', { preset, view, loudness: state.matchLoudness, tap: state.tap })
     .then((msg) => {
       state.renderedPreset = preset; // what the views show (tests compare it with the preset being edited)
       state.report = msg.report;
@@ -32,6 +32,7 @@ export function requestRender() {
       state.errorSignal = null;
       state.renderMs = msg.ms;
       state.loudness = msg.loudness;
+      state.tapped = msg.tap; // { stage, sqnr_db } when the views show a tapped stage, else null
       hooks.rendered();
       setStatus(`Rendered in ${msg.ms.toFixed(0)} ms`);
       document.body.dataset.rendered = String((+document.body.dataset.rendered || 0) + 1);

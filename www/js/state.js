@@ -17,6 +17,8 @@ export const state = {
   loudness: null, // { input, output } in LUFS, from the latest render when matchLoudness is on
   fftSize: 4096,
   window: 'hann',
+  tap: null, // the stage (index) whose output the views and the audition show instead of the chain's, or null
+  tapped: null, // the latest render's tap: { stage, sqnr_db }, or null
 };
 window.stairstep = state; // for tests and the curious
 

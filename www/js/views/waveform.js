@@ -89,7 +89,7 @@ export function drawWave() {
 
 // Seconds along the bottom: ticks at a round step (1, 2 or 5 × a power of ten) at least ~80 px apart, labelled.
 const STEPS = [1, 2, 5].flatMap((m) => [-4, -3, -2, -1, 0, 1, 2].map((e) => m * 10 ** e)).sort((a, b) => a - b);
-function drawRuler(g, w, h, ruler, dpr, t0, t1) {
+export function drawRuler(g, w, h, ruler, dpr, t0, t1) {
   const span = t1 - t0;
   if (!(span > 0)) return;
   g.fillStyle = css('--plot-bg');
@@ -161,8 +161,10 @@ function setLoop(loop) {
   drawWave();
 }
 
-// Zoom by `factor` around frame `centre`; scroll by `frames`; both keep the view inside the sound.
-function zoom(centre, factor) {
+// Zoom by `factor` around frame `centre`; scroll by `frames`; both keep the view inside the sound. The view window is
+// shared: the spectrogram zooms and scrolls with these too, and follows every change (`viewHooks.changed`).
+export const viewHooks = { changed: () => {} };
+export function zoom(centre, factor) {
   const { start, end } = viewRange();
   const span = Math.min(state.info.frames, Math.max(256, (end - start) * factor));
   let s = Math.round(centre - (centre - start) * (span / (end - start)));
@@ -170,12 +172,14 @@ function zoom(centre, factor) {
   state.view = { start: s, end: Math.round(s + span) };
   refreshEnvelope();
 }
-function scroll(frames) {
+export function scroll(frames) {
   const { start, end } = viewRange();
   const s = Math.max(0, Math.min(state.info.frames - (end - start), start + frames));
   state.view = { start: s, end: s + (end - start) };
   refreshEnvelope();
 }
+
+export function wholeView() { state.view = { start: 0, end: state.info.frames }; refreshEnvelope(); }
 
 export function setupWaveform() {
   const wave = $('wave');
@@ -211,7 +215,7 @@ export function setupWaveform() {
     }
     zoom(centre, ev.deltaY > 0 ? 1.25 : 0.8);
   }, { passive: false });
-  wave.addEventListener('dblclick', () => { state.view = { start: 0, end: state.info.frames }; refreshEnvelope(); });
+  wave.addEventListener('dblclick', wholeView);
   // The same from the keyboard, on the focused waveform.
   wave.addEventListener('keydown', (ev) => {
     if (!state.info) return;
@@ -222,7 +226,7 @@ export function setupWaveform() {
     else if (k === '-' || k === '_') zoom(centre, 1.25);
     else if (k === 'ArrowLeft') scroll(-Math.round((end - start) / 10));
     else if (k === 'ArrowRight') scroll(Math.round((end - start) / 10));
-    else if (k === '0' || k === 'Home') { state.view = { start: 0, end: state.info.frames }; refreshEnvelope(); }
+    else if (k === '0' || k === 'Home') wholeView();
     else return;
     ev.preventDefault();
   });
@@ -233,6 +237,7 @@ export function setupWaveform() {
 
 export function refreshEnvelope() {
   if (!state.report) return;
+  viewHooks.changed();
   call('envelope', { view: { ...viewRange(), columns: waveColumns() } }).then((msg) => { state.env = msg.env; drawWave(); })
     .catch(() => {});
 }
