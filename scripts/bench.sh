@@ -8,7 +8,7 @@
 # Steps: machine facts; builds (release CLI; the ratio example and the criterion benches in their own target dir,
 # target/bench, so that they never invalidate the release build; the wasm core for the page); the ratio table's rows
 # (examples/bench_ratios.rs: core chain vs numpy, quantize vs copy, wasm in node vs native, spectrum vs numpy);
-# the page in headless Chromium (scripts/bench/page.mjs); the wasm size; the CLI's peak memory on a long WAV; the CLI
+# the page in headless Chromium (scripts/bench/page.mjs: a re-render; scripts/bench/edit.mjs: edit-to-paint latency); the wasm size; the CLI's peak memory on a long WAV; the CLI
 # whole process against a numpy script and a no-stage render against cp + sync (scripts/bench/numpy_render.py); the
 # criterion micro-benchmarks (benches/core.rs, short times); then the table (scripts/bench/table.mjs).
 # Results go to build/bench/. Timings are never asserted: these machines are shared and noisy, so every ratio is a
@@ -28,10 +28,10 @@ for arg in "$@"; do
   esac
 done
 if [ "$QUICK" = 1 ]; then
-  PAGE_SECONDS=5; PAGE_ROUNDS=3; WAV_SECONDS=10; QUICK_ARG=--quick; CLI_SECONDS=10; CLI_ROUNDS=3
+  PAGE_SECONDS=5; PAGE_ROUNDS=3; EDIT_ARGS="--seconds 2 --edits 3"; WAV_SECONDS=10; QUICK_ARG=--quick; CLI_SECONDS=10; CLI_ROUNDS=3
   CRITERION_ARGS=(--warm-up-time 0.05 --measurement-time 0.1 --sample-size 10 --noplot)
 else
-  PAGE_SECONDS=60; PAGE_ROUNDS=7; WAV_SECONDS=600; QUICK_ARG=; CLI_SECONDS=120; CLI_ROUNDS=7
+  PAGE_SECONDS=60; PAGE_ROUNDS=7; EDIT_ARGS="--seconds 10 --seconds 60 --edits 10"; WAV_SECONDS=600; QUICK_ARG=; CLI_SECONDS=120; CLI_ROUNDS=7
   CRITERION_ARGS=(--warm-up-time 0.5 --measurement-time 1.5 --noplot)
 fi
 
@@ -96,6 +96,9 @@ step "ratios (examples/bench_ratios.rs; numpy and node run as its children)"
 step "page: ${PAGE_SECONDS} s stereo re-render in headless Chromium (scripts/bench/page.mjs)"
 node scripts/bench/page.mjs --page "$PAGE" --seconds "$PAGE_SECONDS" --rounds "$PAGE_ROUNDS" \
   --preset "$OUT/chain-preset.json" --out "$OUT"
+step "page: edit-to-paint latency in headless Chromium (scripts/bench/edit.mjs)"
+# shellcheck disable=SC2086 # EDIT_ARGS is a list of options
+node scripts/bench/edit.mjs --page "$PAGE" $EDIT_ARGS --out "$OUT"
 
 # ---- wasm size ----------------------------------------------------------------------------------------------------
 step "wasm size"
