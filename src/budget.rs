@@ -69,8 +69,7 @@ pub fn export_choices() -> Vec<ExportFormat> {
         ExportFormat::wav(WavEncoding::Mulaw),
         ExportFormat::wav(WavEncoding::Alaw),
         ExportFormat::wav(WavEncoding::ImaAdpcm),
-        // Microsoft ADPCM is left out until its round-trip stage matches its export on long sounds (it drifts by a
-        // few LSB after some tens of blocks; see the codec's tests).
+        ExportFormat::wav(WavEncoding::MsAdpcm),
         ExportFormat::wav(WavEncoding::G721),
         ExportFormat::Vox,
         raw(8),
