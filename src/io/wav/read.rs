@@ -4,7 +4,7 @@ use super::*;
 use crate::audio::{Clip, MAX_CHANNELS, MAX_SAMPLE_RATE};
 use crate::codec::g711::{alaw_to_linear, ulaw_to_linear};
 use crate::codec::ima_adpcm as adpcm;
-use crate::codec::{g721, ms_adpcm};
+use crate::codec::{g721, gsm610, ms_adpcm};
 use crate::error::{Error, Result};
 use crate::io::{ExportMeta, SampleLoop, WavEncoding};
 
@@ -48,6 +48,7 @@ impl WavFormat {
             (WAVE_FORMAT_IMA_ADPCM, _) => Some(WavEncoding::ImaAdpcm),
             (WAVE_FORMAT_MS_ADPCM, _) => Some(WavEncoding::MsAdpcm),
             (WAVE_FORMAT_G721_ADPCM, _) => Some(WavEncoding::G721),
+            (WAVE_FORMAT_GSM610, _) => Some(WavEncoding::Gsm610),
             _ => None,
         }
     }
@@ -65,6 +66,7 @@ impl WavFormat {
             WAVE_FORMAT_IMA_ADPCM => "IMA ADPCM".into(),
             WAVE_FORMAT_MS_ADPCM => "Microsoft ADPCM".into(),
             WAVE_FORMAT_G721_ADPCM => "G.721 ADPCM".into(),
+            WAVE_FORMAT_GSM610 => "GSM 6.10".into(),
             t => format!("format {t:#06x}"),
         };
         if self.format_tag == WAVE_FORMAT_EXTENSIBLE {
@@ -152,6 +154,8 @@ pub fn read_with_meta(bytes: &[u8]) -> Result<(Clip, WavMeta)> {
             meta.warnings.push(format!("`fact` chunk says {max} frames but the data holds {}", pcm.len()));
         }
         vec![pcm.into_iter().map(|s| s as f32 / 32768.0).collect()]
+    } else if f.sub_format == WAVE_FORMAT_GSM610 {
+        decode_gsm610(data, meta.fact_frames, &mut meta.warnings)
     } else {
         decode_frames(data, f, &mut meta.warnings)
     };
@@ -432,7 +436,8 @@ pub(super) fn parse_fmt(b: &[u8], warnings: &mut Vec<String>) -> Result<WavForma
             f.sample_rate
         ));
     }
-    if bits == 0 {
+    // GSM 6.10 has no bits per sample: its writers put 0 there.
+    if bits == 0 && f.format_tag != WAVE_FORMAT_GSM610 {
         return err("`fmt ` chunk declares 0 bits per sample".into());
     }
     let cb_size = (b.len() >= 18).then(|| u16_at(b, 16) as usize);
@@ -563,6 +568,16 @@ pub(super) fn parse_fmt(b: &[u8], warnings: &mut Vec<String>) -> Result<WavForma
                 return err(format!("G.721 with {} is not supported (one channel)", plural(ch, "channel")));
             }
             // A continuous stream: the block align only says how writers padded it.
+            return Ok(f);
+        }
+        WAVE_FORMAT_GSM610 => {
+            if ch != 1 || ba != gsm610::BLOCK_BYTES {
+                return err(format!(
+                    "GSM 6.10 with {} and block align {ba} is not supported (one channel, 65-byte blocks)",
+                    plural(ch, "channel")
+                ));
+            }
+            f.samples_per_block = Some(gsm610::SAMPLES_PER_BLOCK as u16);
             return Ok(f);
         }
         t => return err(format!("unsupported format tag {t:#06x}{}", tag_name(t))),
@@ -755,4 +770,17 @@ fn parse_cue(b: &[u8], meta: &mut WavMeta) {
             sample_offset: u32_at(p, 20),
         });
     }
+}
+
+/// GSM 6.10 blocks; the `fact` chunk, when present, gives the true length.
+fn decode_gsm610(data: &[u8], fact: Option<u32>, warnings: &mut Vec<String>) -> Vec<Vec<f32>> {
+    let max = fact.map_or(u64::MAX, u64::from);
+    let (pcm, rest) = gsm610::decode_blocks(data, max);
+    if rest > 0 {
+        warnings.push(format!("{rest} bytes after the last whole 65-byte GSM 6.10 block: ignored"));
+    }
+    if (pcm.len() as u64) < max && max != u64::MAX {
+        warnings.push(format!("`fact` chunk says {max} frames but the data holds {}", pcm.len()));
+    }
+    vec![pcm.into_iter().map(|s| s as f32 / 32768.0).collect()]
 }
