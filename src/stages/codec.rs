@@ -15,7 +15,8 @@
 //! the first frame; the last partial frame of a stream is not heard). Its output, moved 160 samples earlier, is
 //! exactly what a decoder plays from the `gsm610` export of the stage's input (checked against libsndfile). Re-coding
 //! decoded GSM is not transparent, so export the signal *before* this stage (a chain without it) to get the file it
-//! lets you hear; the stage is for auditioning the codec's sound.
+//! lets you hear; the stage is for auditioning the codec's sound. The chain compensates no stage's delay, so the
+//! chain's SQNR, its error signal and this stage's own figure compare its output with the input one frame earlier.
 //!
 //! `ima-adpcm` is the older `{"kind": "adpcm"}` stage under a new name and gives the same bytes. Each sample is
 //! converted to 16 bits with [`pcm_code`] first (as the exports do) and the decoded value scaled back by 1/32768.
