@@ -21,7 +21,8 @@ fn process_block_does_not_allocate_after_warm_up() {
         (
             "clean",
             8000,
-            r#"{"kind":"codec","codec":"g721"},{"kind":"codec","codec":"ms-adpcm","samples_per_block":64}"#,
+            r#"{"kind":"codec","codec":"g721"},{"kind":"codec","codec":"ms-adpcm","samples_per_block":64},
+            {"kind":"codec","codec":"gsm610"}"#,
         ),
     ] {
         let json = format!(

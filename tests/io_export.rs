@@ -232,9 +232,12 @@ fn loops_round_trip_through_wav() {
     };
     for encoding in WavEncoding::ALL {
         let f = ExportFormat::Wav { encoding, block_align: None };
-        // G.721 exists at 8000 Hz only.
-        let clip =
-            if encoding == WavEncoding::G721 { Clip::new(8000, clip.channels.clone()).unwrap() } else { clip.clone() };
+        // G.721 and GSM 6.10 exist at 8000 Hz only.
+        let clip = if matches!(encoding, WavEncoding::G721 | WavEncoding::Gsm610) {
+            Clip::new(8000, clip.channels.clone()).unwrap()
+        } else {
+            clip.clone()
+        };
         let (back, m) = read_with_meta(&f.encode_with(&clip, &meta).unwrap()).unwrap();
         assert_eq!(back.frames(), 2000);
         assert!(m.warnings.is_empty(), "{encoding:?}: {:?}", m.warnings);
@@ -291,7 +294,8 @@ fn extreme_rates_and_channel_counts() {
             let f = ExportFormat::wav(encoding);
             let fixed = match encoding {
                 WavEncoding::MsAdpcm => ch > 2,
-                WavEncoding::G721 => true, // one channel at 8000 Hz only: none of these extremes
+                // One channel at 8000 Hz only: none of these extremes.
+                WavEncoding::G721 | WavEncoding::Gsm610 => true,
                 _ => false,
             };
             if fixed {

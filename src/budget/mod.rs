@@ -72,9 +72,10 @@ pub fn export_choices() -> Vec<ExportFormat> {
         ExportFormat::wav(WavEncoding::Mulaw),
         ExportFormat::wav(WavEncoding::Alaw),
         ExportFormat::wav(WavEncoding::ImaAdpcm),
-        // Microsoft ADPCM is left out until its round-trip stage matches its export on long sounds (it drifts by a
-        // few LSB after some tens of blocks; see the codec's tests).
+        ExportFormat::wav(WavEncoding::MsAdpcm),
         ExportFormat::wav(WavEncoding::G721),
+        // GSM 6.10 (8000 Hz mono) is left out: no stage can make the audition what its file holds (see
+        // `hearing_stage`), so its figures would not be the file's.
         ExportFormat::Vox,
         raw(8),
         raw(4),
@@ -85,7 +86,7 @@ pub fn export_choices() -> Vec<ExportFormat> {
 /// Microsoft ADPCM one or two channels; the others take any.
 pub fn applies(export: &ExportFormat, rate: u32, channels: usize) -> bool {
     match export {
-        ExportFormat::Wav { encoding: WavEncoding::G721, .. } => rate == 8_000 && channels == 1,
+        ExportFormat::Wav { encoding: WavEncoding::G721 | WavEncoding::Gsm610, .. } => rate == 8_000 && channels == 1,
         ExportFormat::Wav { encoding: WavEncoding::MsAdpcm, .. } => channels <= 2,
         ExportFormat::Vox => channels == 1,
         _ => true,
@@ -113,7 +114,7 @@ pub fn export_label(export: &ExportFormat) -> String {
 /// The stage that makes a chain's audition exactly what `export` writes, for a chain input of `channels` channels:
 /// an undithered quantizer at the export's bit depth (PCM up to 24 bits, raw, C arrays), G.711 (μ-law, A-law), the
 /// IMA ADPCM round trip with the export's block size. `None` for 32-bit and float exports (the audition is already
-/// what they hold, to within 2⁻³¹ or float rounding).
+/// what they hold, to within 2⁻³¹ or float rounding), and for GSM 6.10, which no stage can make exact.
 pub fn hearing_stage(export: &ExportFormat, channels: usize) -> Result<Option<StageSpec>> {
     use crate::io::CElement;
     let q = |bits| Some(StageSpec::Quantize(QuantizeParams::bits(bits)));
@@ -137,6 +138,10 @@ pub fn hearing_stage(export: &ExportFormat, channels: usize) -> Result<Option<St
                 block_align.map(|b| crate::codec::ms_adpcm::samples_per_block(b as usize, channels)).transpose()?,
             ),
             WavEncoding::G721 => codec(CodecName::G721, None),
+            // No stage makes the audition what a GSM 6.10 file holds: the codec stage plays it one frame late (a
+            // stage cannot look ahead) and re-coding decoded GSM is not transparent, so appending it would put a
+            // second, shifted coding into the file. Hence GSM 6.10 is not among `export_choices`.
+            WavEncoding::Gsm610 => None,
         },
         ExportFormat::Vox => codec(CodecName::VoxAdpcm, None),
         ExportFormat::Aiff { encoding } => match encoding {

@@ -4,6 +4,7 @@
 pub mod delta;
 pub mod g711;
 pub mod g721;
+pub mod gsm610;
 pub mod ima_adpcm;
 pub mod ms_adpcm;
 pub mod vox;

@@ -21,11 +21,18 @@
 //! # The encoder (ours, not a copy of any other)
 //! The format fixes only the decoder; every encoder chooses the predictor index and the initial delta of each block
 //! and the codes. Ours is causal, so the round-trip stage can play exactly the export sample by sample:
-//! - the predictor of a block is the pair that predicted the *previous* block's input best (least sum of absolute
-//!   open-loop prediction errors); the first block uses pair 0;
+//! - the predictor of a block is the pair that predicted the *previous* block's decoded samples best (least sum of
+//!   absolute open-loop prediction errors); the first block uses pair 0;
 //! - the initial delta is the delta the previous block ended with (16 for the first block);
 //! - each code is the one whose reconstruction is nearest the input (libsndfile truncates the quotient instead,
 //!   which costs a few dB), among the codes that keep `delta` within 16 bits.
+//!
+//! Every choice depends only on what a decoder plays (the decoded samples and the decoder's state), never on the
+//! input itself, so the encoder is *idempotent*: encoding its own decoded output gives the same bytes again. That is
+//! what makes the round-trip stage equal to the export: the export encodes the chain's output, which is the stage's
+//! decoded signal when the stage is last. (An earlier version chose the predictor from the previous block's *input*;
+//! re-encoding the decoded signal then picked another pair now and then, and the export drifted from the stage by a
+//! few LSB after some tens of blocks.)
 //!
 //! # Quirk: the 16-bit delta
 //! The format's description computes `delta` in plain integers; libsndfile keeps it in a 16-bit integer, so a delta
@@ -167,11 +174,11 @@ pub struct MsEncoder {
     samples_per_block: usize,
     pos: usize,
     state: MsState,
-    /// Open-loop prediction error of each pair over the current block's input.
+    /// Open-loop prediction error of each pair over the current block's decoded samples.
     score: [u64; 7],
-    /// The last two input samples.
-    x1: i16,
-    x2: i16,
+    /// The last two decoded samples (what a decoder plays).
+    y1: i16,
+    y2: i16,
 }
 
 /// What [`MsEncoder::push`] made of a sample.
@@ -198,8 +205,8 @@ impl MsEncoder {
             pos: 0,
             state: MsState { pred: 0, delta: MIN_DELTA, s1: 0, s2: 0 },
             score: [0; 7],
-            x1: 0,
-            x2: 0,
+            y1: 0,
+            y2: 0,
         }
     }
 
@@ -226,16 +233,17 @@ impl MsEncoder {
                 (MsOut::Verbatim, x)
             }
             _ => {
-                for (k, s) in self.score.iter_mut().enumerate() {
-                    let p = (self.x1 as i32 * COEF1[k] + self.x2 as i32 * COEF2[k]) >> 8;
-                    *s += (x as i32 - p).unsigned_abs() as u64;
-                }
                 let code = self.state.encode(x);
-                (MsOut::Code(code), self.state.s1)
+                let y = self.state.s1;
+                for (k, s) in self.score.iter_mut().enumerate() {
+                    let p = (self.y1 as i32 * COEF1[k] + self.y2 as i32 * COEF2[k]) >> 8;
+                    *s += (y as i32 - p).unsigned_abs() as u64;
+                }
+                (MsOut::Code(code), y)
             }
         };
-        self.x2 = self.x1;
-        self.x1 = x;
+        self.y2 = self.y1;
+        self.y1 = out.1;
         self.pos += 1;
         if self.pos == self.samples_per_block {
             self.pos = 0;

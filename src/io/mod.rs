@@ -50,11 +50,14 @@ pub enum WavEncoding {
     MsAdpcm,
     /// ITU-T G.721 32 kbit/s ADPCM (format tag 0x0040; one channel at 8000 Hz), see [`crate::codec::g721`].
     G721,
+    /// GSM 06.10 full-rate (format tag 0x0031, Microsoft's "WAV49" packing: two 260-bit frames in 65 bytes; one
+    /// channel at 8000 Hz), see [`crate::codec::gsm610`].
+    Gsm610,
 }
 
 impl WavEncoding {
     /// Every encoding, in declaration order.
-    pub const ALL: [WavEncoding; 10] = [
+    pub const ALL: [WavEncoding; 11] = [
         WavEncoding::PcmU8,
         WavEncoding::PcmS16,
         WavEncoding::PcmS24,
@@ -65,6 +68,7 @@ impl WavEncoding {
         WavEncoding::ImaAdpcm,
         WavEncoding::MsAdpcm,
         WavEncoding::G721,
+        WavEncoding::Gsm610,
     ];
 
     /// The name used in presets, e.g. `pcm-s16`.
@@ -80,12 +84,13 @@ impl WavEncoding {
             WavEncoding::ImaAdpcm => "ima-adpcm",
             WavEncoding::MsAdpcm => "ms-adpcm",
             WavEncoding::G721 => "g721",
+            WavEncoding::Gsm610 => "gsm610",
         }
     }
 
     /// Whether samples map to whole bytes (PCM, float, G.711): what the streaming writer and reader handle.
     pub fn is_byte_aligned(self) -> bool {
-        !matches!(self, WavEncoding::ImaAdpcm | WavEncoding::MsAdpcm | WavEncoding::G721)
+        !matches!(self, WavEncoding::ImaAdpcm | WavEncoding::MsAdpcm | WavEncoding::G721 | WavEncoding::Gsm610)
     }
 }
 
@@ -127,7 +132,7 @@ pub enum CElement {
 /// How an export is written. JSON forms:
 ///
 /// - `{"type": "wav", "encoding": "pcm-s16"}`; `encoding` is one of `pcm-u8 pcm-s16 pcm-s24 pcm-s32 float32 mulaw
-///   alaw ima-adpcm ms-adpcm g721`; `ima-adpcm` and `ms-adpcm` also take `"block_align": 512` (bytes per block, all
+///   alaw ima-adpcm ms-adpcm g721 gsm610`; `ima-adpcm` and `ms-adpcm` also take `"block_align": 512` (bytes per block, all
 ///   channels; default 256 per channel).
 /// - `{"type": "vox"}`: Dialogic 4-bit ADPCM, raw and headerless, one channel; see [`crate::codec::vox`].
 /// - `{"type": "delta-bits", "step": 0.02, "leak": 1.0, "bit_order": "msb-first"}`: the packed bit stream of a 1-bit

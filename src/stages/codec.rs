@@ -8,11 +8,21 @@
 //! | `ms-adpcm` | `{"type": "wav", "encoding": "ms-adpcm"}` | any |
 //! | `g721` | `{"type": "wav", "encoding": "g721"}` | 8000 Hz only |
 //! | `vox-adpcm` | `{"type": "vox"}` | any (6–8 kHz typical) |
+//! | `gsm610` | `{"type": "wav", "encoding": "gsm610"}` | 8000 Hz only |
+//!
+//! `gsm610` is frame-based: a 160-sample frame can be coded only once its last sample has arrived, and a stage
+//! cannot look ahead, so this stage plays the decoded signal **one frame (160 samples, 20 ms) late** (silence for
+//! the first frame; the last partial frame of a stream is not heard). Its output, moved 160 samples earlier, is
+//! exactly what a decoder plays from the `gsm610` export of the stage's input (checked against libsndfile). Re-coding
+//! decoded GSM is not transparent, so export the signal *before* this stage (a chain without it) to get the file it
+//! lets you hear; the stage is for auditioning the codec's sound. The chain compensates no stage's delay, so the
+//! chain's SQNR, its error signal and this stage's own figure compare its output with the input one frame earlier.
 //!
 //! `ima-adpcm` is the older `{"kind": "adpcm"}` stage under a new name and gives the same bytes. Each sample is
 //! converted to 16 bits with [`pcm_code`] first (as the exports do) and the decoded value scaled back by 1/32768.
 
 use crate::codec::g721::G721;
+use crate::codec::gsm610::FrameRoundTrip;
 use crate::codec::ms_adpcm::MsEncoder;
 use crate::codec::vox::VoxState;
 use crate::error::{Error, Range, Result};
@@ -37,6 +47,8 @@ pub enum CodecName {
     G721,
     /// Dialogic 4-bit ADPCM, raw `.vox`.
     VoxAdpcm,
+    /// GSM 06.10 full-rate (13 kbit/s), WAV format 0x0031; 8000 Hz only; one frame (160 samples) late.
+    Gsm610,
 }
 
 impl CodecName {
@@ -47,13 +59,14 @@ impl CodecName {
             CodecName::MsAdpcm => "ms-adpcm",
             CodecName::G721 => "g721",
             CodecName::VoxAdpcm => "vox-adpcm",
+            CodecName::Gsm610 => "gsm610",
         }
     }
 
     /// The only sample rate the codec is defined at, if it has one.
     pub fn required_rate(self) -> Option<u32> {
         match self {
-            CodecName::G721 => Some(8000),
+            CodecName::G721 | CodecName::Gsm610 => Some(8000),
             _ => None,
         }
     }
@@ -116,6 +129,7 @@ enum Coder {
     Ms(MsEncoder, usize),
     G721(Box<G721>),
     Vox(VoxState),
+    Gsm(Box<FrameRoundTrip>),
 }
 
 /// The codec round trip for one channel.
@@ -139,6 +153,7 @@ impl CodecRoundTrip {
             }
             CodecName::G721 => Coder::G721(Box::default()),
             CodecName::VoxAdpcm => Coder::Vox(VoxState::default()),
+            CodecName::Gsm610 => Coder::Gsm(Box::default()),
         };
         Ok(CodecRoundTrip { coder, clipped: 0 })
     }
@@ -161,6 +176,7 @@ impl Stage for CodecRoundTrip {
                     v.encode(code);
                     v.last as i16
                 }
+                Coder::Gsm(g) => g.push(code),
                 Coder::Ima(_) => unreachable!(),
             };
             *s = y as f32 / 32768.0;
@@ -177,6 +193,7 @@ impl Stage for CodecRoundTrip {
             Coder::Ms(_, spb) => Coder::Ms(MsEncoder::new(*spb), *spb),
             Coder::G721(_) => Coder::G721(Box::default()),
             Coder::Vox(_) => Coder::Vox(VoxState::default()),
+            Coder::Gsm(_) => Coder::Gsm(Box::default()),
         };
         self.clipped = 0;
     }
@@ -225,6 +242,7 @@ mod tests {
             (CodecName::MsAdpcm, 40_000),
             (CodecName::G721, 500),
             (CodecName::VoxAdpcm, 500),
+            (CodecName::Gsm610, 320),
         ] {
             let e = CodecRoundTrip::new(&CodecParams { codec, samples_per_block: Some(spb) }).unwrap_err();
             assert!(e.to_string().contains("samples_per_block"), "{codec:?} {spb}: {e}");
@@ -233,12 +251,15 @@ mod tests {
         assert!(e.contains("add a rate stage with rate_hz 8000"), "{e}");
         assert!(CodecName::G721.check_rate(8000).is_ok());
         assert!(CodecName::MsAdpcm.check_rate(44_100).is_ok());
+        let e = CodecName::Gsm610.check_rate(16_000).unwrap_err().to_string();
+        assert!(e.contains("gsm610") && e.contains("add a rate stage with rate_hz 8000"), "{e}");
     }
 
     /// Every codec: reset restarts exactly; a full-scale sample is counted as clipped.
     #[test]
     fn reset_restarts_and_clips_are_counted() {
-        for codec in [CodecName::ImaAdpcm, CodecName::MsAdpcm, CodecName::G721, CodecName::VoxAdpcm] {
+        for codec in [CodecName::ImaAdpcm, CodecName::MsAdpcm, CodecName::G721, CodecName::VoxAdpcm, CodecName::Gsm610]
+        {
             let mut st = CodecRoundTrip::new(&CodecParams { codec, samples_per_block: None }).unwrap();
             let mut a: Vec<f32> = (0..1200).map(|i| (i as f32 * 0.05).sin() * 0.5).collect();
             a[7] = 1.0;

@@ -180,10 +180,10 @@ pub fn schema() -> Vec<Kind> {
         ),
         with_defaults(
             "codec",
-            "Codec round trip (4-bit ADPCM)",
+            "Codec round trip (ADPCM, GSM)",
             StageSpec::Codec(Default::default()),
             vec![
-                choice("codec", "Codec", &["ima-adpcm", "ms-adpcm", "g721", "vox-adpcm"]),
+                choice("codec", "Codec", &["ima-adpcm", "ms-adpcm", "g721", "vox-adpcm", "gsm610"]),
                 // One range for both block codecs: IMA ADPCM's (8k + 1); Microsoft ADPCM takes even counts 4 to 32768.
                 num("samples_per_block", "Block", "int", "samples", adpcm::SAMPLES_PER_BLOCK)
                     .step(8.0)

@@ -40,7 +40,8 @@ export const EXPORT_TYPES = {
     label: 'WAV',
     fields: [
       { key: 'encoding', label: 'Encoding',
-        ...E(['pcm-u8', 'pcm-s16', 'pcm-s24', 'pcm-s32', 'float32', 'mulaw', 'alaw', 'ima-adpcm', 'ms-adpcm', 'g721']),
+        ...E(['pcm-u8', 'pcm-s16', 'pcm-s24', 'pcm-s32', 'float32', 'mulaw', 'alaw', 'ima-adpcm', 'ms-adpcm', 'g721',
+          'gsm610']),
         def: 'pcm-s16' },
       { key: 'block_align', label: 'Block align', type: 'int', min: 8, max: 65532, step: 4, unit: 'B', def: null,
         placeholder: '256 × ch', when: (s) => s.encoding === 'ima-adpcm' || s.encoding === 'ms-adpcm' },

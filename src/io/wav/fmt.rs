@@ -3,7 +3,7 @@
 use super::*;
 use crate::audio::{MAX_CHANNELS, MAX_SAMPLE_RATE};
 use crate::codec::ima_adpcm as adpcm;
-use crate::codec::ms_adpcm;
+use crate::codec::{gsm610, ms_adpcm};
 use crate::error::{Error, Result};
 use crate::io::WavEncoding;
 
@@ -47,6 +47,7 @@ impl WavFormat {
             (WAVE_FORMAT_IMA_ADPCM, _) => Some(WavEncoding::ImaAdpcm),
             (WAVE_FORMAT_MS_ADPCM, _) => Some(WavEncoding::MsAdpcm),
             (WAVE_FORMAT_G721_ADPCM, _) => Some(WavEncoding::G721),
+            (WAVE_FORMAT_GSM610, _) => Some(WavEncoding::Gsm610),
             _ => None,
         }
     }
@@ -64,6 +65,7 @@ impl WavFormat {
             WAVE_FORMAT_IMA_ADPCM => "IMA ADPCM".into(),
             WAVE_FORMAT_MS_ADPCM => "Microsoft ADPCM".into(),
             WAVE_FORMAT_G721_ADPCM => "G.721 ADPCM".into(),
+            WAVE_FORMAT_GSM610 => "GSM 6.10".into(),
             t => format!("format {t:#06x}"),
         };
         if self.format_tag == WAVE_FORMAT_EXTENSIBLE {
@@ -160,7 +162,8 @@ pub(super) fn parse_fmt(b: &[u8], warnings: &mut Vec<String>) -> Result<WavForma
             f.sample_rate
         ));
     }
-    if bits == 0 {
+    // GSM 6.10 has no bits per sample: its writers put 0 there.
+    if bits == 0 && f.format_tag != WAVE_FORMAT_GSM610 {
         return err("`fmt ` chunk declares 0 bits per sample".into());
     }
     let cb_size = (b.len() >= 18).then(|| u16_at(b, 16) as usize);
@@ -291,6 +294,16 @@ pub(super) fn parse_fmt(b: &[u8], warnings: &mut Vec<String>) -> Result<WavForma
                 return err(format!("G.721 with {} is not supported (one channel)", plural(ch, "channel")));
             }
             // A continuous stream: the block align only says how writers padded it.
+            return Ok(f);
+        }
+        WAVE_FORMAT_GSM610 => {
+            if ch != 1 || ba != gsm610::BLOCK_BYTES {
+                return err(format!(
+                    "GSM 6.10 with {} and block align {ba} is not supported (one channel, 65-byte blocks)",
+                    plural(ch, "channel")
+                ));
+            }
+            f.samples_per_block = Some(gsm610::SAMPLES_PER_BLOCK as u16);
             return Ok(f);
         }
         t => return err(format!("unsupported format tag {t:#06x}{}", tag_name(t))),

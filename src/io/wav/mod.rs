@@ -7,7 +7,8 @@
 //! Format tags: PCM (1) with 8-bit unsigned, 16-, 24- and 32-bit signed samples (other widths up to 32 bits in the
 //! next whole-byte container, left-justified, as the format requires); IEEE float (3), 32 and 64 bits; A-law (6);
 //! μ-law (7); IMA ADPCM (0x11); Microsoft ADPCM (0x0002, 1 or 2 channels); G.721 ADPCM (0x0040, one channel, decoded
-//! in libsndfile's arithmetic: see [`crate::codec::g721`]); `WAVE_FORMAT_EXTENSIBLE` (0xFFFE) whose subformat GUID is PCM, float, A-law or μ-law.
+//! in libsndfile's arithmetic: see [`crate::codec::g721`]); GSM 6.10 (0x0031, one channel, 65-byte WAV49 blocks: see
+//! [`crate::codec::gsm610`]); `WAVE_FORMAT_EXTENSIBLE` (0xFFFE) whose subformat GUID is PCM, float, A-law or μ-law.
 //! 1 to 64 channels, 1 to 768,000 Hz. Integer samples are scaled by 2^−(bits−1) (full scale −1.0 … 1 − 2^−(bits−1)).
 //!
 //! Chunks: `fmt ` and `data` are required; `fact` gives the true length of IMA ADPCM; `smpl` loops and `cue ` points
@@ -35,6 +36,9 @@
 //!   the format requires), `fact`, `data` of whole blocks ([`crate::codec::ms_adpcm`]).
 //! - G.721: `fmt ` of 20 bytes (cbSize 2, auxiliary block size 0), `fact`, `data` of whole 60-byte blocks of 120
 //!   samples, the last completed with coded silence ([`crate::codec::g721`]). One channel at 8000 Hz only.
+//! - GSM 6.10: `fmt ` of 20 bytes (0 bits per sample, cbSize 2, samplesPerBlock 320), `fact`, `data` of whole
+//!   65-byte blocks of 320 samples (two 160-sample frames), the last completed with silence before coding
+//!   ([`crate::codec::gsm610`]). One channel at 8000 Hz only.
 //! - With loops, a `smpl` chunk follows `data` (so readers that assume a 44-byte PCM header still work).
 //!
 //! Plain PCM tags are used even for 24/32 bits and more than two channels (no `WAVE_FORMAT_EXTENSIBLE`): every
@@ -55,6 +59,7 @@ pub(crate) const WAVE_FORMAT_MULAW: u16 = 7;
 pub(crate) const WAVE_FORMAT_IMA_ADPCM: u16 = 0x11;
 pub(crate) const WAVE_FORMAT_MS_ADPCM: u16 = 0x0002;
 pub(crate) const WAVE_FORMAT_G721_ADPCM: u16 = 0x0040;
+pub(crate) const WAVE_FORMAT_GSM610: u16 = 0x0031;
 pub(crate) const WAVE_FORMAT_EXTENSIBLE: u16 = 0xFFFE;
 
 /// Bytes 2..16 of every `KSDATAFORMAT_SUBTYPE_*` GUID derived from a format tag

@@ -7,7 +7,7 @@ use super::*;
 use crate::audio::Clip;
 use crate::codec::g711::{alaw_to_linear, ulaw_to_linear};
 use crate::codec::ima_adpcm as adpcm;
-use crate::codec::{g721, ms_adpcm};
+use crate::codec::{g721, gsm610, ms_adpcm};
 use crate::error::{Error, Result};
 use crate::io::{ExportMeta, SampleLoop};
 
@@ -88,6 +88,8 @@ pub fn read_with_meta(bytes: &[u8]) -> Result<(Clip, WavMeta)> {
             meta.warnings.push(format!("`fact` chunk says {max} frames but the data holds {}", pcm.len()));
         }
         vec![pcm.into_iter().map(|s| s as f32 / 32768.0).collect()]
+    } else if f.sub_format == WAVE_FORMAT_GSM610 {
+        decode_gsm610(data, meta.fact_frames, &mut meta.warnings)
     } else {
         decode_frames(data, f, &mut meta.warnings)
     };
@@ -455,4 +457,17 @@ fn parse_cue(b: &[u8], meta: &mut WavMeta) {
             sample_offset: u32_at(p, 20),
         });
     }
+}
+
+/// GSM 6.10 blocks; the `fact` chunk, when present, gives the true length.
+fn decode_gsm610(data: &[u8], fact: Option<u32>, warnings: &mut Vec<String>) -> Vec<Vec<f32>> {
+    let max = fact.map_or(u64::MAX, u64::from);
+    let (pcm, rest) = gsm610::decode_blocks(data, max);
+    if rest > 0 {
+        warnings.push(format!("{rest} bytes after the last whole 65-byte GSM 6.10 block: ignored"));
+    }
+    if (pcm.len() as u64) < max && max != u64::MAX {
+        warnings.push(format!("`fact` chunk says {max} frames but the data holds {}", pcm.len()));
+    }
+    vec![pcm.into_iter().map(|s| s as f32 / 32768.0).collect()]
 }

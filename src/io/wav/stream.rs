@@ -9,7 +9,7 @@
 use super::fmt::parse_fmt;
 use super::read::{decode_frames, truncation};
 use super::write::{body_append, header, trailer};
-use super::{WavFormat, WAVE_FORMAT_G721_ADPCM, WAVE_FORMAT_IMA_ADPCM, WAVE_FORMAT_MS_ADPCM};
+use super::{WavFormat, WAVE_FORMAT_G721_ADPCM, WAVE_FORMAT_GSM610, WAVE_FORMAT_IMA_ADPCM, WAVE_FORMAT_MS_ADPCM};
 use crate::error::{Error, Result};
 use crate::io::{ExportMeta, WavEncoding};
 use std::io::{Read, Seek, SeekFrom, Write};
@@ -55,7 +55,10 @@ impl<R: Read + Seek> StreamReader<R> {
                 }
                 b"data" => {
                     let Some(f) = format else { return Ok(None) };
-                    if matches!(f.sub_format, WAVE_FORMAT_IMA_ADPCM | WAVE_FORMAT_MS_ADPCM | WAVE_FORMAT_G721_ADPCM) {
+                    if matches!(
+                        f.sub_format,
+                        WAVE_FORMAT_IMA_ADPCM | WAVE_FORMAT_MS_ADPCM | WAVE_FORMAT_G721_ADPCM | WAVE_FORMAT_GSM610
+                    ) {
                         return Ok(None);
                     }
                     let avail = size.min(len - body);

@@ -4,7 +4,7 @@ use super::*;
 use crate::audio::Clip;
 use crate::codec::g711::{linear_to_alaw, linear_to_ulaw};
 use crate::codec::ima_adpcm as adpcm;
-use crate::codec::{g721, ms_adpcm};
+use crate::codec::{g721, gsm610, ms_adpcm};
 use crate::error::{Error, Result};
 use crate::io::{check_clip, ExportMeta, WavEncoding};
 use crate::sample::pcm_code;
@@ -17,7 +17,7 @@ fn bytes_per_sample(enc: WavEncoding) -> usize {
         WavEncoding::PcmS16 => 2,
         WavEncoding::PcmS24 => 3,
         WavEncoding::PcmS32 | WavEncoding::Float32 => 4,
-        WavEncoding::ImaAdpcm | WavEncoding::MsAdpcm | WavEncoding::G721 => 0,
+        WavEncoding::ImaAdpcm | WavEncoding::MsAdpcm | WavEncoding::G721 | WavEncoding::Gsm610 => 0,
     }
 }
 
@@ -26,7 +26,7 @@ fn fmt_layout(enc: WavEncoding) -> (u32, bool) {
     match enc {
         WavEncoding::PcmU8 | WavEncoding::PcmS16 | WavEncoding::PcmS24 | WavEncoding::PcmS32 => (16, false),
         WavEncoding::Float32 | WavEncoding::Mulaw | WavEncoding::Alaw => (18, true),
-        WavEncoding::ImaAdpcm | WavEncoding::G721 => (20, true),
+        WavEncoding::ImaAdpcm | WavEncoding::G721 | WavEncoding::Gsm610 => (20, true),
         // cbSize 32: samplesPerBlock, the coefficient count and the seven standard pairs.
         WavEncoding::MsAdpcm => (50, true),
     }
@@ -64,6 +64,18 @@ fn g721_channels(channels: usize) -> Result<()> {
     Ok(())
 }
 
+/// GSM 06.10 holds one channel (the WAV49 layout has no other).
+fn gsm_channels(channels: usize) -> Result<()> {
+    if channels != 1 {
+        return Err(Error::param(
+            "channels",
+            channels,
+            "1: a GSM 6.10 WAV holds one channel (set prep \"channels\": {\"mono\": \"sum-3db\"})",
+        ));
+    }
+    Ok(())
+}
+
 /// Size of the `data` chunk's body.
 fn data_size(enc: WavEncoding, block_align: Option<usize>, frames: usize, channels: usize) -> Result<u64> {
     if enc == WavEncoding::ImaAdpcm {
@@ -77,6 +89,9 @@ fn data_size(enc: WavEncoding, block_align: Option<usize>, frames: usize, channe
     } else if enc == WavEncoding::G721 {
         g721_channels(channels)?;
         Ok((frames as u64).div_ceil(g721::SAMPLES_PER_BLOCK as u64) * g721::BYTES_PER_BLOCK as u64)
+    } else if enc == WavEncoding::Gsm610 {
+        gsm_channels(channels)?;
+        Ok(gsm610::block_count(frames as u64) * gsm610::BLOCK_BYTES as u64)
     } else {
         Ok((frames as u64).saturating_mul(channels as u64).saturating_mul(bytes_per_sample(enc) as u64))
     }
@@ -147,6 +162,7 @@ pub(super) fn header(
         WavEncoding::ImaAdpcm => WAVE_FORMAT_IMA_ADPCM,
         WavEncoding::MsAdpcm => WAVE_FORMAT_MS_ADPCM,
         WavEncoding::G721 => WAVE_FORMAT_G721_ADPCM,
+        WavEncoding::Gsm610 => WAVE_FORMAT_GSM610,
         _ => WAVE_FORMAT_PCM,
     };
     u16le(&mut out, tag);
@@ -180,6 +196,14 @@ pub(super) fn header(
         u16le(&mut out, 4);
         u16le(&mut out, 2);
         u16le(&mut out, 0);
+    } else if enc == WavEncoding::Gsm610 {
+        // As libsndfile and the Microsoft codec write it: 65-byte blocks of 320 samples, 0 bits per sample, cbSize 2
+        // and samplesPerBlock.
+        u32le(&mut out, (rate as u64 * gsm610::BLOCK_BYTES as u64 / gsm610::SAMPLES_PER_BLOCK as u64) as u32);
+        u16le(&mut out, gsm610::BLOCK_BYTES as u16);
+        u16le(&mut out, 0);
+        u16le(&mut out, 2);
+        u16le(&mut out, gsm610::SAMPLES_PER_BLOCK as u16);
     } else {
         let bps = bytes_per_sample(enc);
         u32le(&mut out, rate * (ch * bps) as u32);
@@ -213,7 +237,7 @@ pub(super) fn body_append<C: AsRef<[f32]>>(enc: WavEncoding, block: &[C], out: &
                 WavEncoding::Float32 => out.extend_from_slice(&x.to_le_bytes()),
                 WavEncoding::Mulaw => out.push(linear_to_ulaw(pcm_code(x, 16) as i16)),
                 WavEncoding::Alaw => out.push(linear_to_alaw(pcm_code(x, 16) as i16)),
-                WavEncoding::ImaAdpcm | WavEncoding::MsAdpcm | WavEncoding::G721 => {}
+                WavEncoding::ImaAdpcm | WavEncoding::MsAdpcm | WavEncoding::G721 | WavEncoding::Gsm610 => {}
             }
         }
     }
@@ -265,6 +289,8 @@ pub fn write_with(clip: &Clip, enc: WavEncoding, block_align: Option<usize>, met
     if !enc.is_byte_aligned() {
         if enc == WavEncoding::G721 {
             crate::stages::codec::CodecName::G721.check_rate(clip.sample_rate)?;
+        } else if enc == WavEncoding::Gsm610 {
+            crate::stages::codec::CodecName::Gsm610.check_rate(clip.sample_rate)?;
         }
         let codes: Vec<Vec<i16>> =
             clip.channels.iter().map(|c| c.iter().map(|&x| pcm_code(sanitize(x), 16) as i16).collect()).collect();
@@ -273,6 +299,7 @@ pub fn write_with(clip: &Clip, enc: WavEncoding, block_align: Option<usize>, met
                 ms_adpcm::encode_blocks(&codes, ms_block_align(block_align, ch)?.0, &mut out)?;
             }
             WavEncoding::G721 => g721::encode_stream(&codes[0], &mut out),
+            WavEncoding::Gsm610 => gsm610::encode_blocks(&codes[0], &mut out),
             _ => adpcm::encode_blocks(&codes, block_align.unwrap_or_else(|| adpcm::default_block_align(ch)), &mut out)?,
         }
     } else {
