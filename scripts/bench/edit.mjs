@@ -68,7 +68,7 @@ try {
     let before = await renders();
     await page.setInputFiles('#file', wav);
     await settle(before);
-    // One quantizer: the edited stage is stage 1, and nothing else in the chain moves the timing.
+    // One quantizer: the edited stage is the first (fields are numbered from 0), and nothing else in the chain moves the timing.
     const preset = { format: 'stairstep-preset', version: 1, name: 'edit latency', seed: 1,
       stages: [{ kind: 'quantize', bits: 8 }], export: { type: 'wav', encoding: 'pcm-s16' } };
     const presetFile = join(out, 'edit-preset.json');
@@ -77,7 +77,7 @@ try {
     await page.setInputFiles('#preset-file', presetFile);
     await settle(before);
     const timings = await page.evaluate(async ({ count }) => {
-      const field = document.getElementById('f-1-bits');
+      const field = document.getElementById('f-0-bits');
       const frame = () => new Promise((r) => requestAnimationFrame(() => r()));
       const rendered = () => +document.body.dataset.rendered || 0;
       const result = [];
