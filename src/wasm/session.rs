@@ -26,6 +26,8 @@ pub struct Session {
     /// The preparation the chain's input was made with (the default, a no-op, before any render: the input is then
     /// the loaded sound).
     rendered_prep: PrepParams,
+    /// The loaded file's own loop (a WAV `smpl` or AIFF `INST` sustain loop), used as the CLI uses it.
+    file_loop: Option<(u64, u64)>,
 }
 
 impl Default for Session {
@@ -48,6 +50,7 @@ impl Session {
             input_spectrum: None,
             headroom_cache: None,
             rendered_prep: PrepParams::default(),
+            file_loop: None,
         }
     }
 
@@ -84,6 +87,24 @@ impl Session {
         self.set_source(io::wav::read(bytes).map_err(js_err)?)
     }
 
+    /// Loads a WAV or AIFF/AIFF-C file from its bytes with the core's own readers ([`io::read::read_own`], as the
+    /// CLI reads them: the same samples, and the file's own loop), at most `max_samples` samples. Returns its
+    /// description as JSON with `decoder`, `format`, `warnings` and `fileLoop` added. On error the current sound
+    /// stays.
+    #[wasm_bindgen(js_name = loadFile)]
+    pub fn load_file(&mut self, bytes: &[u8], max_samples: f64) -> Result<String, JsError> {
+        let limits = io::read::Limits { max_samples: max_samples.max(0.0) as u64 };
+        let d = io::read::read_own(bytes, limits).map_err(js_err)?;
+        let info = self.set_source(d.clip)?;
+        self.file_loop = d.file_loop;
+        let mut v: serde_json::Value = serde_json::from_str(&info).map_err(|e| JsError::new(&e.to_string()))?;
+        v["decoder"] = d.decoder.into();
+        v["format"] = d.format.into();
+        v["warnings"] = d.warnings.into();
+        v["fileLoop"] = serde_json::to_value(d.file_loop).unwrap_or_default();
+        Ok(v.to_string())
+    }
+
     /// Loads interleaved samples decoded by the browser.
     #[wasm_bindgen(js_name = loadSamples)]
     pub fn load_samples(&mut self, sample_rate: u32, channels: usize, interleaved: &[f32]) -> Result<String, JsError> {
@@ -92,6 +113,7 @@ impl Session {
 
     fn set_source(&mut self, clip: Clip) -> Result<String, JsError> {
         self.source = clip;
+        self.file_loop = None;
         self.render = None;
         self.rendered_prep = PrepParams::default();
         self.input_changed();
@@ -123,7 +145,7 @@ impl Session {
 
     /// Renders the loaded sound through the preset; returns the [`crate::chain::RenderReport`] as JSON.
     pub fn render(&mut self) -> Result<String, JsError> {
-        let r = render::render(&self.preset, &self.source).map_err(js_err)?;
+        let r = render::render_with_loop(&self.preset, &self.source, self.file_loop).map_err(js_err)?;
         let mut v = serde_json::to_value(&r.report).map_err(|e| JsError::new(&e.to_string()))?;
         // The asset budget: the exact size of the file the export would write, and its data rate.
         let fmt = &self.preset.export;
