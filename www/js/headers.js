@@ -47,7 +47,7 @@ function oggRate(b) {
   if (b.length < 28 || ascii(b, 0, 4) !== 'OggS') return null;
   const segments = b[26];
   const p = 27 + segments;
-  if (p + 30 > b.length) return null;
+  if (p + 19 > b.length) return null; // the shortest header read here (OpusHead) is 19 bytes
   const dv = new DataView(b.buffer, b.byteOffset, b.byteLength);
   if (b[p] === 1 && ascii(b, p + 1, 6) === 'vorbis') {
     const channels = b[p + 11];

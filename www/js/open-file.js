@@ -60,6 +60,9 @@ export async function openFile(f) {
 }
 
 async function decodeInBrowser(f, kind, label, info) {
+  // A header that gives the length (FLAC STREAMINFO) lets a sound too long for the page be refused before decoding.
+  if (info?.frames && info.channels &&
+    refuseIfTooLong(f.name, { samples: info.frames * info.channels, ...info })) return;
   const bytes = await f.arrayBuffer();
   const known = info && info.rate >= 3000 && info.rate <= 768000;
   const rate = known ? info.rate : FALLBACK_RATE;
