@@ -98,7 +98,7 @@ for (const [name, reader] of [['tone-s16.aiff', 'stairstep AIFF reader'], ['tone
     if (name.endsWith('.wav')) assert.ok(i.fileLoop, 'the `smpl` loop is read, as the CLI reads it');
     const cliSays = cliAnalyze(name);
     assert.deepEqual([cliSays.sample_rate, cliSays.frames], [rate, frames], 'the CLI reads the same shape');
-    if (name === 'tone-44100.flac') await screenshot(s.page, 'formats-flac');
+    if (name === 'tone-44100.flac' || name === 'tone-s24.aiff') await screenshot(s.page, `formats-${name.replace('.', '-')}`);
     for (const preset of ['handheld', 'clean-8', transparent]) {
       if (preset === transparent) {
         await afterRender(s.page, () => s.page.evaluate((p) => window.stairstepApplyPreset(p), JSON.parse(readFileSync(preset))));

@@ -68,7 +68,7 @@ export async function loadSource(payload, name, transfer = [], note = null) {
       `${msg.info.channels === 1 ? 'mono' : msg.info.channels === 2 ? 'stereo' : msg.info.channels + ' ch'}, ` +
       `${msg.info.sampleRate.toLocaleString('en')} Hz, ${(msg.info.frames / msg.info.sampleRate).toFixed(2)} s` +
       (d.decoder ? ` · ${d.format} · ${d.decoder}` : '');
-    $('source-info').title = d.decoder ? `Read by ${d.decoder}` : '';
+    $('source-info').title = d.decoder ? $('source-info').textContent : '';
     requestRender();
   } catch (err) {
     setStatus(`Could not load ${name}: ${err.message}. The current sound is unchanged.`, 'error');
