@@ -143,6 +143,16 @@ test('Ogg Opus: decoded at 48,000 Hz, the only rate Opus decodes at, and the sta
     /tone-24000\.opus: Opus at 48,000 Hz, read from its header; Opus always decodes at 48,000 Hz \(the encoder's input was 24,000 Hz\)/);
 });
 
+test('a file whose rate cannot be read from a header: the status says so and names the rate used', async () => {
+  // An MP3 behind 70,000 bytes of zeros: no header the page reads, but the browser finds the frames.
+  const mp3 = readFileSync(join(tmp, 'tone-22050.mp3'));
+  writeFileSync(join(tmp, 'hidden.mp3'), Buffer.concat([Buffer.alloc(70000), mp3]));
+  const i = await open('hidden.mp3');
+  assert.deepEqual([i.sampleRate, i.rateFrom, i.format], [48000, 'assumed', 'format not recognised']);
+  assert.match(await s.page.textContent('#status'),
+    /^hidden\.mp3: no sample rate could be read from its header \(format not recognised\); the browser decoded it at 48,000 Hz/);
+});
+
 test('a file neither the core nor the browser reads is refused, and the current sound stays', async () => {
   const stub = join(tmp, 'stub.webm');
   writeFileSync(stub, Buffer.from([0x1a, 0x45, 0xdf, 0xa3, 0x80]));

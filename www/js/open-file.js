@@ -88,11 +88,12 @@ async function decodeInBrowser(f, kind, label, info) {
     for (let i = 0; i < b.length; i++) inter[i * b.numberOfChannels + c] = d[i];
   }
   if (kind === 'flac' && info?.bits) exactPcm(inter, info.bits);
-  const codec = info?.codec ?? label;
+  const codec = info?.codec ?? (kind === 'unknown' ? 'format not recognised' : label);
   const note = known
     ? `${f.name}: ${codec} at ${hz(rate)}, read from its header${info.note ? `; ${info.note}` : ''}; decoded by the ` +
       'browser at that rate.'
-    : `${f.name}: the sample rate could not be read from its header (${label}); the browser decoded it at ` +
+    : `${f.name}: no sample rate could be read from its header (${kind === 'unknown' ? 'format not recognised' : label}); ` +
+      'the browser decoded it at ' +
       `${hz(rate)}, resampling if the file's own rate differs. The command-line tool may read it at another rate.`;
   const decoder = { decoder: 'browser decodeAudioData', format: info?.bits ? `${codec}, ${info.bits}-bit` : codec,
     rateFrom: known ? 'header' : 'assumed' };
