@@ -344,3 +344,57 @@ fn damaged_files_are_clear_errors_with_exit_3() {
         assert!(!err.contains("panicked"), "{name}: {err}");
     }
 }
+
+/// The page reads AIFF/AIFF-C with the core's own reader (`io::read::read_own`; symphonia would add over 100 kB
+/// gzipped to the wasm); the CLI reads them with symphonia. Every encoding libsndfile writes must read to the same
+/// floats, bit for bit, with the same rate, shape and loop, so the page's render is the CLI's. libsndfile writes the
+/// files (AIFF for integer PCM, AIFF-C `fl32`, `fl64`, `ulaw`, `alaw`, `raw `) and is the reference where
+/// symphonia's reading is not checked above.
+#[test]
+fn the_pages_aiff_reader_reads_what_symphonia_and_libsndfile_read() {
+    use stairstep::io::read::{read_own, AIFF_READER};
+    let dir = tempfile::tempdir().unwrap();
+    let cases = [
+        ("PCM_S8", 11_025, 1),
+        ("PCM_U8", 8_000, 2),
+        ("PCM_16", 44_100, 2),
+        ("PCM_24", 48_000, 2),
+        ("PCM_32", 22_050, 1),
+        ("FLOAT", 44_100, 2),
+        ("DOUBLE", 96_000, 1),
+        ("ULAW", 8_000, 1),
+        ("ALAW", 8_000, 2),
+    ];
+    for (subtype, rate, channels) in cases {
+        let path = dir.path().join(format!("{subtype}.aiff"));
+        libsndfile_write(&path, "AIFF", subtype, rate, channels, 10_007, true);
+        let bytes = std::fs::read(&path).unwrap();
+        let ours = read_own(&bytes, Limits::default()).unwrap_or_else(|e| panic!("{subtype}: {e}"));
+        assert_eq!(ours.decoder, AIFF_READER);
+        let want = libsndfile_read(&path);
+        assert_eq!((ours.clip.sample_rate, ours.clip.channel_count()), (rate, channels), "{subtype}");
+        // libsndfile writes an 8-bit mono file's pad byte into `SSND` and counts it in `COMM` (10,008 frames), yet
+        // reads back 10,007; symphonia and the page's reader both read the 10,008 that `COMM` declares.
+        assert!(ours.clip.frames() - want.frames <= 1, "{subtype}: {} frames", ours.clip.frames());
+        let got = interleaved(&ours.clip);
+        let differ = got.iter().zip(&want.samples).filter(|(a, b)| a.to_bits() != b.to_bits()).count();
+        assert_eq!(differ, 0, "{subtype}: {differ} samples differ from libsndfile's");
+        match read_any(&bytes, Some("aiff"), Limits::default()) {
+            Ok(sym) => {
+                assert_eq!(ours.clip, sym.clip, "{subtype}: the page's reader and the CLI's symphonia differ");
+                assert_eq!(ours.file_loop, sym.file_loop, "{subtype}");
+            }
+            Err(e) => panic!("{subtype}: symphonia cannot read it ({e}), so the CLI would refuse what the page reads"),
+        }
+    }
+    // Our own exports, with a sustain loop: the same loop as the CLI reads.
+    let clip = test_clip(32_000);
+    for enc in AiffEncoding::ALL {
+        let meta = ExportMeta { loops: vec![SampleLoop::forward(1_000, 2_999)], ..Default::default() };
+        let bytes = ExportFormat::Aiff { encoding: enc }.encode_with(&clip, &meta).unwrap();
+        let ours = read_own(&bytes, Limits::default()).unwrap();
+        let sym = read_any(&bytes, Some("aiff"), Limits::default()).unwrap();
+        assert_eq!((&ours.clip, ours.file_loop), (&sym.clip, sym.file_loop), "{enc:?}");
+        assert_eq!(ours.file_loop, Some((1_000, 3_000)), "{enc:?}");
+    }
+}

@@ -51,8 +51,10 @@ const handlers = {
     let info;
     if (msg.demo) info = session.loadDemo(msg.demo);
     else if (msg.wav) info = session.loadWav(new Uint8Array(msg.wav));
+    else if (msg.file) info = session.loadFile(new Uint8Array(msg.file), msg.maxSamples);
     else info = session.loadSamples(msg.sampleRate, msg.channels, msg.interleaved);
     const d = describe(info);
+    if (msg.decoder) Object.assign(d.info, msg.decoder); // decoded by the browser: which decoder, at which rate
     inputLoudness = null;
     reply('loaded', { id: msg.id, ...d, name: msg.name }, d.input.map((a) => a.buffer));
   },

@@ -1,6 +1,8 @@
 //! Reading any supported sound file in the native CLI: WAV through the project's own reader ([`super::wav`]),
 //! everything else — FLAC, AIFF and AIFF-C, Ogg Vorbis, MP3, CAF (PCM and ALAC) — through the `symphonia` crate.
-//! Native only: the page keeps its own WAV reader (this module and `symphonia` are not compiled for wasm32).
+//! Native only: `symphonia` in the wasm would cost over 100 kB gzipped (DEVELOPERS.md, "Reading files in the
+//! page"), so the page reads WAV and AIFF/AIFF-C with the core's own readers ([`super::read`], the same samples as
+//! here) and leaves the other formats to the browser, at the file's own rate.
 //!
 //! # Which reader
 //! By content, not by name: a file that starts with `RIFF....WAVE` goes to [`super::wav::read_with_meta`], so WAV
@@ -29,6 +31,8 @@
 //! instead of exhausting memory. Header values are checked before any allocation that depends on them
 //! (channels 1..=64, rate 1..=768,000 Hz, frames per packet ≤ 2^20).
 
+use super::read::{add_aiff_loop, read_wav};
+pub use super::read::{Decoded, Limits, MAX_DECODED_SAMPLES, WAV_READER};
 use crate::audio::{Clip, MAX_CHANNELS, MAX_SAMPLE_RATE};
 use crate::error::{Error, Result};
 use std::borrow::Cow;
@@ -43,44 +47,9 @@ use symphonia::core::formats::{FormatOptions, TrackType};
 use symphonia::core::io::MediaSourceStream;
 use symphonia::core::meta::MetadataOptions;
 
-/// Default bound on decoded samples (all channels): 2^28, 1 GiB as f32 — 46 minutes of 48 kHz stereo.
-pub const MAX_DECODED_SAMPLES: u64 = 1 << 28;
-
 /// Largest frames-per-packet a header may declare before the decoder allocates its buffer (FLAC allows 65,535;
 /// ALAC's default is 4,096).
 const MAX_FRAMES_PER_PACKET: u64 = 1 << 20;
-
-/// The name [`Decoded::decoder`] gives for the project's own WAV reader.
-pub const WAV_READER: &str = "stairstep WAV reader";
-
-/// Bounds on what a decode may produce.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub struct Limits {
-    /// Most samples (frames × channels) a file may decode to.
-    pub max_samples: u64,
-}
-
-impl Default for Limits {
-    fn default() -> Self {
-        Limits { max_samples: MAX_DECODED_SAMPLES }
-    }
-}
-
-/// A decoded file.
-#[derive(Debug, Clone, PartialEq)]
-pub struct Decoded {
-    /// The samples, at the file's own rate.
-    pub clip: Clip,
-    /// Which reader decoded it: [`WAV_READER`], or `symphonia FORMAT/CODEC` (e.g. `symphonia aiff/pcm_s24be`).
-    pub decoder: String,
-    /// What the file holds, for people, e.g. `16-bit PCM`, `FLAC, 24-bit`, `MPEG Layer 3`.
-    pub format: String,
-    /// The file's own sustain loop, frames `start..end` (end exclusive): a WAV `smpl` loop, or an AIFF `INST`
-    /// sustain loop between two `MARK` markers.
-    pub file_loop: Option<(u64, u64)>,
-    /// What the reader noticed but could read past, one sentence each.
-    pub warnings: Vec<String>,
-}
 
 /// Reads and decodes a file (see [`read_any`]); the extension is passed on as a hint.
 pub fn read_any_file(path: &Path) -> Result<Decoded> {
@@ -91,38 +60,17 @@ pub fn read_any_file(path: &Path) -> Result<Decoded> {
 /// Decodes a file held in memory. `extension` (without the dot) helps the probe; the content decides.
 pub fn read_any(bytes: &[u8], extension: Option<&str>, limits: Limits) -> Result<Decoded> {
     if bytes.len() >= 12 && &bytes[0..4] == b"RIFF" && &bytes[8..12] == b"WAVE" {
-        let (clip, meta) = super::wav::read_with_meta(bytes)?;
-        let samples = clip.frames() as u64 * clip.channel_count() as u64;
-        if samples > limits.max_samples {
-            return Err(too_long(limits));
-        }
-        return Ok(Decoded {
-            clip,
-            decoder: WAV_READER.into(),
-            format: meta.format.describe(),
-            file_loop: meta.loops.first().map(|l| (l.start as u64, l.end as u64 + 1)),
-            warnings: meta.warnings,
-        });
+        return read_wav(bytes, limits);
     }
     let mut decoded = guarded(|| decode_other(bytes, extension, limits))?;
     if decoded.decoder.starts_with("symphonia aiff/") {
-        match super::aiff::read_loops(bytes) {
-            Ok(Some((s, e))) if e > decoded.clip.frames() as u64 => decoded.warnings.push(format!(
-                "sustain loop {s}..{e} ends after the sound's {} frames: ignored",
-                decoded.clip.frames()
-            )),
-            Ok(l) => decoded.file_loop = l,
-            Err(e) => decoded.warnings.push(format!("loop markers ignored: {e}")),
-        }
+        add_aiff_loop(bytes, &mut decoded);
     }
     Ok(decoded)
 }
 
 fn too_long(limits: Limits) -> Error {
-    Error::format(format!(
-        "decodes to more than {} samples, the in-memory limit (convert it to WAV, which the CLI streams)",
-        limits.max_samples
-    ))
+    super::read::too_long(limits.max_samples)
 }
 
 thread_local! {

@@ -4,6 +4,8 @@
 //! - [`aiff`]: the AIFF/AIFF-C writer and its loop markers.
 //! - `decode` (native only): reads any supported file — WAV through [`wav`], FLAC, AIFF, Ogg Vorbis, MP3 and CAF
 //!   through `symphonia`.
+//! - [`read`] (every platform, the page's readers): WAV through [`wav`], AIFF/AIFF-C through [`aiff_read`], which
+//!   gives the same floats as `symphonia` does for AIFF.
 //! - [`ExportFormat`]: what a preset's `export` field says, with an exact [`file_size`](ExportFormat::file_size).
 //! - [`raw`], [`c_array`]: the headerless and C source writers.
 //!
@@ -12,11 +14,13 @@
 //! rounding.
 
 pub mod aiff;
+pub mod aiff_read;
 pub mod c_array;
 mod codecs;
 #[cfg(not(target_arch = "wasm32"))]
 pub mod decode;
 pub mod raw;
+pub mod read;
 pub mod wav;
 
 use crate::audio::{Clip, MAX_CHANNELS, MAX_SAMPLE_RATE};

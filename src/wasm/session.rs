@@ -29,6 +29,8 @@ pub struct Session {
     rendered_prep: PrepParams,
     /// The signal after one stage of the latest render's chain ([`Session::tap`]); dropped by every render and load.
     tap: Option<Tap>,
+    /// The loaded file's own loop (a WAV `smpl` or AIFF `INST` sustain loop), used as the CLI uses it.
+    file_loop: Option<(u64, u64)>,
 }
 
 impl Default for Session {
@@ -52,6 +54,7 @@ impl Session {
             headroom_cache: None,
             rendered_prep: PrepParams::default(),
             tap: None,
+            file_loop: None,
         }
     }
 
@@ -88,6 +91,24 @@ impl Session {
         self.set_source(io::wav::read(bytes).map_err(js_err)?)
     }
 
+    /// Loads a WAV or AIFF/AIFF-C file from its bytes with the core's own readers ([`io::read::read_own`], as the
+    /// CLI reads them: the same samples, and the file's own loop), at most `max_samples` samples. Returns its
+    /// description as JSON with `decoder`, `format`, `warnings` and `fileLoop` added. On error the current sound
+    /// stays.
+    #[wasm_bindgen(js_name = loadFile)]
+    pub fn load_file(&mut self, bytes: &[u8], max_samples: f64) -> Result<String, JsError> {
+        let limits = io::read::Limits { max_samples: max_samples.max(0.0) as u64 };
+        let d = io::read::read_own(bytes, limits).map_err(js_err)?;
+        let info = self.set_source(d.clip)?;
+        self.file_loop = d.file_loop;
+        let mut v: serde_json::Value = serde_json::from_str(&info).map_err(|e| JsError::new(&e.to_string()))?;
+        v["decoder"] = d.decoder.into();
+        v["format"] = d.format.into();
+        v["warnings"] = d.warnings.into();
+        v["fileLoop"] = serde_json::to_value(d.file_loop).unwrap_or_default();
+        Ok(v.to_string())
+    }
+
     /// Loads interleaved samples decoded by the browser.
     #[wasm_bindgen(js_name = loadSamples)]
     pub fn load_samples(&mut self, sample_rate: u32, channels: usize, interleaved: &[f32]) -> Result<String, JsError> {
@@ -96,6 +117,7 @@ impl Session {
 
     fn set_source(&mut self, clip: Clip) -> Result<String, JsError> {
         self.source = clip;
+        self.file_loop = None;
         self.render = None;
         self.tap = None;
         self.rendered_prep = PrepParams::default();
@@ -128,7 +150,7 @@ impl Session {
 
     /// Renders the loaded sound through the preset; returns the [`crate::chain::RenderReport`] as JSON.
     pub fn render(&mut self) -> Result<String, JsError> {
-        let r = render::render(&self.preset, &self.source).map_err(js_err)?;
+        let r = render::render_with_loop(&self.preset, &self.source, self.file_loop).map_err(js_err)?;
         let mut v = serde_json::to_value(&r.report).map_err(|e| JsError::new(&e.to_string()))?;
         // The asset budget: the exact size of the file the export would write, and its data rate.
         let fmt = &self.preset.export;
@@ -357,14 +379,14 @@ impl Session {
         r.encode(&self.preset.export).map_err(js_err)
     }
 
-    /// The format budget's candidates ([`crate::budget`]) for the loaded sound under `preset` (JSON), not yet
+    /// The format budget's candidates ([`crate::budget`]) for the loaded sound under `preset` (JSON) and the file's own loop, as the CLI takes it, not yet
     /// measured: JSON `{ source_rate, duration_s, candidates }`, each candidate a [`budget::CandidateSpec`] in the
     /// order the CLI lists them. The page measures them one call at a time with [`Session::budget_measure`], so that
     /// its worker can report progress and stop between two.
     #[wasm_bindgen(js_name = budgetCandidates)]
     pub fn budget_candidates(&self, preset: &str) -> Result<String, JsError> {
         let preset = Preset::from_json(preset).map_err(js_err)?;
-        let b = Budget::new(&preset, &self.source, None).map_err(js_err)?;
+        let b = Budget::new(&preset, &self.source, self.file_loop).map_err(js_err)?;
         let v = serde_json::json!({
             "source_rate": b.source_rate(),
             "duration_s": b.duration_s(),
@@ -379,7 +401,7 @@ impl Session {
     #[wasm_bindgen(js_name = budgetMeasure)]
     pub fn budget_measure(&self, preset: &str, index: usize) -> Result<String, JsError> {
         let preset = Preset::from_json(preset).map_err(js_err)?;
-        let b = Budget::new(&preset, &self.source, None).map_err(js_err)?;
+        let b = Budget::new(&preset, &self.source, self.file_loop).map_err(js_err)?;
         let specs = b.candidates().map_err(js_err)?;
         let spec = specs.get(index).ok_or_else(|| JsError::new(&format!("no candidate {index}")))?;
         serde_json::to_string(&b.measure(spec).map_err(js_err)?).map_err(|e| JsError::new(&e.to_string()))

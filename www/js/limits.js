@@ -10,7 +10,8 @@
 // 39 s of stereo at 48 kHz, 23 min of mono), that is about 1.2 GiB in the worker and 2.3 GiB for the tab, which an
 // ordinary machine can hold. A 30-minute stereo file (172,800,000 samples, 2.6 times as many) would need about
 // 3 GiB of the 4 GiB the worker can ever have (too close: a vector that grows doubles) and about 6 GiB for the tab.
-// So longer sounds are refused before they are read.
+// So longer sounds are refused before they are read (from a WAV's, an AIFF's or a FLAC file's header; other formats
+// once decoded, see open-file.js).
 import { setStatus } from './util.js';
 
 export const limits = { maxSamples: 2 ** 26 }; // tests may lower it (window.stairstepLimits)

@@ -12,7 +12,7 @@ import { renderPrep, drawPrepReport } from './prep-panel.js';
 import { renderExport, drawBudget, doExport } from './export.js';
 import { setupPresetTools, setBuiltinPresets } from './presets.js';
 import { setupHistory, record } from './history.js';
-import { wavSize, refuseIfTooLong } from './limits.js';
+import { openFile } from './open-file.js';
 import { requestRender } from './session.js';
 import { drawWave, setupWaveform, refreshEnvelope, tick, showLoopFields, viewHooks } from './views/waveform.js';
 import { setupSpectrogram, requestSpectrogram, scheduleSpectrogram, drawSpectrogram, updateSpectrogramLabels }
@@ -137,33 +137,6 @@ function setupAudition() {
     $('monitor-out').textContent = `${db < 0 ? '−' : ''}${Math.abs(db)} dB`;
     audio.applyMonitor();
   };
-}
-
-async function openFile(f) {
-  const head = new Uint8Array(await f.slice(0, 12).arrayBuffer());
-  const isWav = String.fromCharCode(...head.slice(0, 4)) === 'RIFF' && String.fromCharCode(...head.slice(8, 12)) === 'WAVE';
-  // A WAV file too long for the page is refused from its header, before it is read (see limits.js).
-  if (isWav && refuseIfTooLong(f.name, await wavSize(f).catch(() => null))) return;
-  const bytes = await f.arrayBuffer();
-  if (isWav) return loadSource({ wav: bytes }, f.name, [bytes]);
-  // Anything else: let the browser decode it. decodeAudioData resamples to the context's rate, so ask for a context
-  // at a common rate and say so.
-  try {
-    const ctx = new OfflineAudioContext(1, 1, 48000);
-    const b = await ctx.decodeAudioData(bytes);
-    if (refuseIfTooLong(f.name, { samples: b.length * b.numberOfChannels, frames: b.length,
-      channels: b.numberOfChannels, rate: b.sampleRate })) return;
-    const inter = new Float32Array(b.length * b.numberOfChannels);
-    for (let c = 0; c < b.numberOfChannels; c++) {
-      const d = b.getChannelData(c);
-      for (let i = 0; i < b.length; i++) inter[i * b.numberOfChannels + c] = d[i];
-    }
-    await loadSource({ sampleRate: b.sampleRate, channels: b.numberOfChannels, interleaved: inter }, f.name,
-      [inter.buffer]);
-    setStatus(`${f.name} was decoded by the browser at ${b.sampleRate} Hz (its own rate may differ).`);
-  } catch (err) {
-    setStatus(`Could not read ${f.name}: not a WAV file and the browser cannot decode it. The current sound is unchanged.`, 'error');
-  }
 }
 
 async function main() {

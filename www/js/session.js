@@ -34,7 +34,9 @@ export function requestRender() {
       state.loudness = msg.loudness;
       state.tapped = msg.tap; // { stage, sqnr_db } when the views show a tapped stage, else null
       hooks.rendered();
-      setStatus(`Rendered in ${msg.ms.toFixed(0)} ms`);
+      // The first render of a newly opened file also says how it was read (see loadSource).
+      setStatus(`${state.sourceNote ? state.sourceNote + ' ' : ''}Rendered in ${msg.ms.toFixed(0)} ms`);
+      state.sourceNote = null;
       document.body.dataset.rendered = String((+document.body.dataset.rendered || 0) + 1);
     })
     .catch((err) => {
@@ -45,9 +47,13 @@ export function requestRender() {
     .finally(() => { rendering = false; if (pendingRender) requestRender(); });
 }
 
-export async function loadSource(payload, name, transfer = []) {
+// `note`: what the status line says about how the file was read (by default, from the reader's own description).
+export async function loadSource(payload, name, transfer = [], note = null) {
   try {
     const msg = await call('load', { ...payload, name }, transfer);
+    const d = msg.info;
+    state.sourceNote = note ?? (d.decoder ? `${name}: ${d.format}, ${d.sampleRate.toLocaleString('en')} Hz, read by ` +
+      `${d.decoder}${d.warnings?.length ? ` (${d.warnings.join('; ')})` : ''}.` : null);
     state.info = msg.info;
     state.input = msg.input;
     state.sourceName = name;
@@ -61,7 +67,9 @@ export async function loadSource(payload, name, transfer = []) {
     hooks.sourceLoaded();
     $('source-info').textContent =
       `${msg.info.channels === 1 ? 'mono' : msg.info.channels === 2 ? 'stereo' : msg.info.channels + ' ch'}, ` +
-      `${msg.info.sampleRate.toLocaleString('en')} Hz, ${(msg.info.frames / msg.info.sampleRate).toFixed(2)} s`;
+      `${msg.info.sampleRate.toLocaleString('en')} Hz, ${(msg.info.frames / msg.info.sampleRate).toFixed(2)} s` +
+      (d.decoder ? ` · ${d.format} · ${d.decoder}` : '');
+    $('source-info').title = d.decoder ? $('source-info').textContent : '';
     requestRender();
   } catch (err) {
     setStatus(`Could not load ${name}: ${err.message}. The current sound is unchanged.`, 'error');

@@ -3,7 +3,8 @@ import { $ } from './util.js';
 
 export const state = {
   sourceName: 'chime-loop',
-  info: null, // { sampleRate, channels, frames }
+  info: null, // { sampleRate, channels, frames } and, for an opened file, { decoder, format, warnings, fileLoop }
+  sourceNote: null, // how the newly opened file was read, for the status line after its first render
   input: null, // Float32Array per channel
   output: null,
   report: null,
