@@ -310,3 +310,33 @@ fn candidates_and_limits_read_back_from_their_json_give_the_same_front_and_pick(
         }
     }
 }
+
+/// `budget` reads what `render` reads: the drum hit as a FLAC written by libsndfile (python-soundfile, lossless 16-bit)
+/// gives the same candidates, bytes and figures as the WAV it came from; a folder walk takes both.
+#[test]
+fn budget_reads_flac_like_the_wav_it_came_from() {
+    let dir = tempfile::tempdir().unwrap();
+    assert!(run(&["demo", "drum-hit", "-o", "d.wav"], dir.path()).status.success());
+    let wav = std::fs::read(dir.path().join("d.wav")).unwrap();
+    let flac = common::run_python(
+        "import io, sys, soundfile as sf\n\
+         x, r = sf.read(io.BytesIO(sys.stdin.buffer.read()), dtype='int16')\n\
+         b = io.BytesIO(); sf.write(b, x, r, format='FLAC', subtype='PCM_16'); sys.stdout.buffer.write(b.getvalue())",
+        &wav,
+    );
+    std::fs::create_dir(dir.path().join("lib")).unwrap();
+    std::fs::write(dir.path().join("lib/d.flac"), &flac).unwrap();
+    let json = |input: &str| -> serde_json::Value {
+        let out = run(&["budget", input, "--max-bytes", "8192", "--json"], dir.path());
+        assert!(out.status.success(), "{input}: {}", String::from_utf8_lossy(&out.stderr));
+        serde_json::from_slice(&out.stdout).unwrap()
+    };
+    let (a, b) = (json("d.wav"), json("lib/d.flac"));
+    assert_eq!(a["candidates"], b["candidates"]);
+    assert_eq!(a["pick"], b["pick"]);
+    std::fs::copy(dir.path().join("d.wav"), dir.path().join("lib/d.wav")).unwrap();
+    let out = run(&["budget", "--recursive", "lib", "--total-bytes", "20000", "--json"], dir.path());
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(text.contains("d.flac") && text.contains("d.wav"), "{text}");
+}

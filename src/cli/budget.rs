@@ -2,19 +2,22 @@
 //! within a byte or bit-rate budget; for a folder, one total shared among its files. Candidates are measured in
 //! parallel (rayon); the figures and the pick do not depend on the number of threads.
 
-use super::{load_preset, read_file, write_atomic, Failure, EXIT_INPUT, EXIT_OUTPUT, EXIT_USAGE};
+use super::{load_preset, write_atomic, Failure, EXIT_INPUT, EXIT_OUTPUT, EXIT_USAGE};
 use rayon::prelude::*;
 use serde::Serialize;
 use stairstep::budget::{self, Allocation, Budget, Candidate, Limit, Score};
-use stairstep::{io, Preset};
+use stairstep::Preset;
 use std::path::{Path, PathBuf};
 
 pub const HELP: &str = "\
 Candidates: the chain's own rate, the source rate and 44100/32000/22050/16000/11025/8000 Hz (at or below the source
-rate), each with the preset's own export, WAV 16-bit, WAV 8-bit, WAV mu-law, WAV A-law, WAV IMA ADPCM, raw 8-bit and
-raw 4-bit. The chain's rate stage gets the candidate's rate and keeps its mode; a chain without one gets a clean (band-limited) rate
-stage first. The stage that makes the audition what the file holds is appended (quantizer, G.711 or ADPCM); it does
-not change the bytes.
+rate), each with the preset's own export, WAV 16-bit, WAV 8-bit, WAV mu-law, WAV A-law, WAV IMA ADPCM, WAV Microsoft
+ADPCM (1-2 channels), WAV G.721 (8000 Hz mono), VOX ADPCM (mono), raw 8-bit and raw 4-bit. GSM 06.10 is not a
+candidate (its round-trip stage runs one frame late). The chain's rate stage gets the candidate's rate and keeps its
+mode; a chain without one gets a clean (band-limited) rate stage first. The stage that makes the audition what the
+file holds is appended (quantizer, G.711 or the codec's round trip); it does not change the bytes.
+
+Inputs: what `stairstep render` reads (WAV, FLAC, AIFF, Ogg Vorbis, MP3, CAF), with the file's own loop.
 
 Figures: bytes (exactly what `stairstep render` writes with the candidate's preset), bytes per second and kbit/s over
 the sound's duration, SQNR, A-weighted SNR (IEC 61672-1 weighting A applied to the original and to the error), the
@@ -39,7 +42,7 @@ Examples:
 
 #[derive(clap::Args)]
 pub struct Args {
-    /// Input WAV file, or a folder with --recursive.
+    /// Input sound file, or a folder with --recursive.
     input: PathBuf,
     /// Preset JSON file or built-in preset name (default: no stages, 16-bit WAV).
     #[arg(short, long)]
@@ -50,7 +53,7 @@ pub struct Args {
     /// Budget: at most this many kbit/s (whole file over the sound's duration).
     #[arg(long, conflicts_with = "total_bytes")]
     max_kbps: Option<f64>,
-    /// Every WAV file in the folder and its sub-folders, sharing --total-bytes.
+    /// Every sound file in the folder and its sub-folders, sharing --total-bytes.
     #[arg(short, long, requires = "total_bytes")]
     recursive: bool,
     /// Budget for all the files of the folder together, in bytes.
@@ -135,11 +138,11 @@ fn parse_score(s: &str) -> Result<Score, Failure> {
     }
 }
 
-/// Reads a WAV and the loop `render` would use from it.
+/// Reads a sound (WAV, FLAC, AIFF, Ogg, MP3, CAF: what `render` reads) and the loop `render` would use from it.
 fn load(path: &Path) -> Result<(stairstep::Clip, Option<(u64, u64)>), Failure> {
-    let (clip, meta) = io::wav::read_with_meta(&read_file(path)?)
-        .map_err(|e| Failure::new(EXIT_INPUT, format!("{}: {e}", path.display())))?;
-    Ok((clip, meta.loops.first().map(|l| (l.start as u64, l.end as u64 + 1))))
+    let input = super::render_file::read_input(path)
+        .map_err(|f| Failure::new(f.code, format!("{}: {}", path.display(), f.message)))?;
+    Ok((input.clip, input.file_loop))
 }
 
 /// What one file's measurement gives: its source rate and duration, its candidates (in the order of
@@ -361,22 +364,6 @@ fn svg_plot(candidates: &[Candidate], pick: Option<usize>, score: Score, limit: 
     s
 }
 
-fn wav_files(dir: &Path, out: &mut Vec<PathBuf>) -> Result<(), Failure> {
-    let mut entries: Vec<PathBuf> = std::fs::read_dir(dir)
-        .map_err(|e| Failure::new(EXIT_INPUT, format!("{}: {e}", dir.display())))?
-        .filter_map(|e| e.ok().map(|e| e.path()))
-        .collect();
-    entries.sort();
-    for p in entries {
-        if p.is_dir() {
-            wav_files(&p, out)?;
-        } else if p.extension().is_some_and(|e| e.eq_ignore_ascii_case("wav") || e.eq_ignore_ascii_case("wave")) {
-            out.push(p);
-        }
-    }
-    Ok(())
-}
-
 fn single(args: &Args, preset: &Preset, score: Score) -> Result<(), Failure> {
     let limit = match (args.max_bytes, args.max_kbps) {
         (Some(b), _) => Limit::MaxBytes(b),
@@ -438,10 +425,11 @@ fn folder(args: &Args, preset: &Preset, score: Score, total: u64) -> Result<(), 
     if !args.input.is_dir() {
         return Err(Failure::new(EXIT_USAGE, format!("{}: --recursive wants a folder", args.input.display())));
     }
-    let mut files = Vec::new();
-    wav_files(&args.input, &mut files)?;
+    let mut found = Vec::new();
+    super::plan::collect(&args.input, &args.input, true, &mut found)?;
+    let files: Vec<PathBuf> = found.into_iter().map(|(path, _)| path).collect();
     if files.is_empty() {
-        return Err(Failure::new(EXIT_INPUT, format!("{}: no WAV files", args.input.display())));
+        return Err(Failure::new(EXIT_INPUT, format!("{}: no sound files", args.input.display())));
     }
     let measured: Vec<(Vec<Candidate>, Vec<Skipped>)> =
         files.iter().map(|f| measure(f, preset, score).map(|m| (m.candidates, m.skipped))).collect::<Result<_, _>>()?;
