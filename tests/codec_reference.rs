@@ -90,23 +90,6 @@ fn hex(s: &str) -> Vec<u8> {
     (0..s.len()).step_by(2).map(|i| u8::from_str_radix(&s[i..i + 2], 16).unwrap()).collect()
 }
 
-/// The body of the `data` chunk and the `fmt ` chunk of a WAV file (a plain walk; the files are libsndfile's).
-fn chunks(file: &[u8]) -> (Vec<u8>, Vec<u8>) {
-    let (mut fmt, mut data) = (Vec::new(), Vec::new());
-    let mut pos = 12;
-    while pos + 8 <= file.len() {
-        let size = u32::from_le_bytes(file[pos + 4..pos + 8].try_into().unwrap()) as usize;
-        let body = file[pos + 8..(pos + 8 + size).min(file.len())].to_vec();
-        match &file[pos..pos + 4] {
-            b"fmt " => fmt = body,
-            b"data" => data = body,
-            _ => {}
-        }
-        pos += 8 + size + (size & 1);
-    }
-    (fmt, data)
-}
-
 /// Asserts equality, reporting the first difference instead of both whole vectors.
 fn same(a: &[i64], b: &[i64], what: &str) {
     assert_eq!(a.len(), b.len(), "{what}: lengths");
@@ -137,7 +120,7 @@ fn ms_adpcm_decoder_equals_libsndfile() {
     for (ch, rate) in [(1usize, 8000u32), (2, 44100)] {
         let x = signal(7001, ch);
         let (file, y) = libsndfile_writes(&x, rate, "WAV", "MS_ADPCM");
-        let (fmt, data) = chunks(&file);
+        let (fmt, data) = common::wav_chunks(&file);
         let ba = u16::from_le_bytes([fmt[12], fmt[13]]) as usize;
         let (ours, _) = ms_adpcm::decode_blocks(&data, ch, ba, u64::MAX).unwrap();
         for c in 0..ch {
@@ -162,7 +145,7 @@ fn ms_adpcm_decoder_equals_libsndfile() {
 fn g721_decoder_equals_libsndfile() {
     let x = signal(8000, 1);
     let (file, y) = libsndfile_writes(&x, 8000, "WAV", "G721_32");
-    let (_, data) = chunks(&file);
+    let (_, data) = common::wav_chunks(&file);
     let ours: Vec<i64> = g721::decode_stream(&data, g721::Arith::Libsndfile, 8000).iter().map(|&s| s as i64).collect();
     same(&ours, &y[0][..8000], "G.721");
     let (clip, m) = wav::read_with_meta(&file).unwrap();

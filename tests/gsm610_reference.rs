@@ -30,23 +30,6 @@ fn ints(v: &Value) -> Vec<i64> {
     v.as_array().expect("array").iter().map(|x| x.as_i64().expect("int")).collect()
 }
 
-/// The body of the `data` chunk and the `fmt ` chunk of a WAV file.
-fn chunks(file: &[u8]) -> (Vec<u8>, Vec<u8>) {
-    let (mut fmt, mut data) = (Vec::new(), Vec::new());
-    let mut pos = 12;
-    while pos + 8 <= file.len() {
-        let size = u32::from_le_bytes(file[pos + 4..pos + 8].try_into().unwrap()) as usize;
-        let body = file[pos + 8..(pos + 8 + size).min(file.len())].to_vec();
-        match &file[pos..pos + 4] {
-            b"fmt " => fmt = body,
-            b"data" => data = body,
-            _ => {}
-        }
-        pos += 8 + size + (size & 1);
-    }
-    (fmt, data)
-}
-
 /// Speech-like test signal: a voiced buzz with vibrato and a syllable envelope, unvoiced noise bursts, pauses with
 /// a little noise, and a few near-full-scale moments.
 fn speechy(frames: usize, seed: u64) -> Vec<i16> {
@@ -156,7 +139,7 @@ fn encoder_and_file_equal_libsndfile() {
     let mut rows = Vec::new();
     for (name, x) in inputs() {
         let (file, theirs) = libsndfile_writes(&x);
-        let (fmt, data) = chunks(&file);
+        let (fmt, data) = common::wav_chunks(&file);
         // libsndfile's `fmt `: tag 0x0031, 1 channel, 8000 Hz, 1625 bytes/s, block 65, 0 bits, cbSize 2, 320.
         assert_eq!(fmt, [0x31, 0, 1, 0, 0x40, 0x1f, 0, 0, 0x59, 6, 0, 0, 65, 0, 0, 0, 2, 0, 0x40, 1], "{name}");
         let mut ours = Vec::new();
@@ -257,7 +240,7 @@ fn file_sizes_are_exact() {
     assert_eq!(written.len() as u64, f.file_size(12_345, 1));
     let mut data = Vec::new();
     gsm610::encode_blocks(&x, &mut data);
-    assert_eq!(chunks(&written).1, data, "the CLI's file holds the codec's blocks");
+    assert_eq!(common::wav_chunks(&written).1, data, "the CLI's file holds the codec's blocks");
 }
 
 /// Other rates and channel counts are refused, naming the rate stage or the mono preparation to add.
@@ -291,7 +274,7 @@ fn arbitrary_blocks_never_panic() {
         let (pcm, rest) = gsm610::decode_blocks(&data, u64::MAX);
         assert_eq!((pcm.len(), rest), (n / 65 * 320, n % 65));
         let mut file = ExportFormat::wav(WavEncoding::Gsm610).encode(&clip_of(&speechy(640, round))).unwrap();
-        let (_, body) = chunks(&file);
+        let (_, body) = common::wav_chunks(&file);
         let at = file.len() - body.len();
         file.truncate(at);
         file.extend_from_slice(&data);

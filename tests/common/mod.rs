@@ -39,3 +39,21 @@ pub fn run_python(code: &str, stdin: &[u8]) -> Vec<u8> {
 pub fn bin() -> PathBuf {
     PathBuf::from(env!("CARGO_BIN_EXE_stairstep"))
 }
+
+/// The bodies of the `fmt ` and `data` chunks of a WAV file, by a plain walk of its chunks (the files read here are
+/// well formed: libsndfile's or ours).
+pub fn wav_chunks(file: &[u8]) -> (Vec<u8>, Vec<u8>) {
+    let (mut fmt, mut data) = (Vec::new(), Vec::new());
+    let mut pos = 12;
+    while pos + 8 <= file.len() {
+        let size = u32::from_le_bytes(file[pos + 4..pos + 8].try_into().unwrap()) as usize;
+        let body = file[pos + 8..(pos + 8 + size).min(file.len())].to_vec();
+        match &file[pos..pos + 4] {
+            b"fmt " => fmt = body,
+            b"data" => data = body,
+            _ => {}
+        }
+        pos += 8 + size + (size & 1);
+    }
+    (fmt, data)
+}
