@@ -29,5 +29,8 @@ CHROMEDRIVER=/usr/bin/chromedriver WASM_BINDGEN_TEST_WEBDRIVER_JSON=$PWD/webdriv
 step "offline page is built from the current sources"
 node scripts/build-page.mjs --check dist/stairstep.html
 
+step "release CLI (the end-to-end tests compare the page's downloads with its renders)"
+cargo build -q --release --bin stairstep
+
 step "end-to-end: the committed page from file:// in headless Chromium (playwright-core)"
 node --test --test-concurrency=1 tests/e2e/
