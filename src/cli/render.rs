@@ -402,6 +402,9 @@ pub fn run(args: Args) -> Result<(), Failure> {
         o
     };
     let outcomes: Vec<Outcome> = match args.jobs {
+        // One file (or one job at a time) needs no thread pool: idle pool threads looking for work take CPU time
+        // from the render on a busy machine. The outputs are the same bytes either way.
+        _ if jobs.len() <= 1 || args.jobs == Some(1) => jobs.iter().map(work).collect(),
         Some(n) => rayon::ThreadPoolBuilder::new()
             .num_threads(n.max(1))
             .build()
