@@ -109,7 +109,9 @@ pub(super) fn render_streaming(
     strict_check(rules, warnings)?;
     let f = reader.format().clone();
     let (ch, rate, frames) = (f.channels as usize, f.sample_rate, reader.frames());
-    let mut chain = Chain::new(preset, ch, rate, frames).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
+    let mut chain = Chain::new(preset, ch, rate, frames)
+        .map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?
+        .without_audition_output();
     if let Some(p) = progress {
         p.set_length(frames as u64);
     }
@@ -139,7 +141,7 @@ pub(super) fn render_streaming(
             });
             // Export blocks are handed over in batches of about SEND_FRAMES frames: each hand-over wakes the other
             // thread, which on a busy machine can cost a scheduler time slice, while the bytes do not depend on
-            // where the stream is cut. The audition is not written: it is dropped block by block.
+            // where the stream is cut. The audition is not written, so the chain does not hand it out.
             let send = |out: &mut ChainOutput| {
                 let empty = spare.try_recv().unwrap_or_else(|_| vec![Vec::with_capacity(SEND_FRAMES + BLOCK); ch]);
                 let full = std::mem::replace(&mut out.export, empty);
@@ -160,7 +162,6 @@ pub(super) fn render_streaming(
                     break;
                 }
                 chain.process_block(&block, &mut out);
-                out.audition.iter_mut().for_each(Vec::clear);
                 if out.export[0].len() >= SEND_FRAMES && !send(&mut out) {
                     fed = false;
                     break;
