@@ -8,7 +8,7 @@ use crate::chain::{Chain, Processed, RenderReport};
 use crate::codec::{ima_adpcm, ms_adpcm};
 use crate::error::{Error, Result};
 use crate::io::{ExportFormat, ExportMeta, SampleLoop, WavEncoding};
-use crate::prep::{self, LoopRegion, PrepReport};
+use crate::prep::{self, PrepReport};
 use crate::preset::Preset;
 use crate::sample::sanitize;
 use crate::stages;
@@ -59,14 +59,16 @@ pub fn render(preset: &Preset, input: &Clip) -> Result<Render> {
     render_with_loop(preset, input, None)
 }
 
-/// Like [`render`], with a loop found in the input file (e.g. its `smpl` chunk: input frames, end exclusive), used
-/// when the preset sets no loop region of its own.
+/// Like [`render`], with a loop found in the input file (e.g. its `smpl` chunk: input frames, end exclusive): the loop
+/// of `"loop_region": "file"`, and the loop kept when the preset sets no loop region of its own
+/// ([`prep::prepare_with_file_loop`]).
 pub fn render_with_loop(preset: &Preset, input: &Clip, file_loop: Option<(u64, u64)>) -> Result<Render> {
-    let mut prep = preset.prep.clone();
-    if prep.loop_region.is_none() {
-        prep.loop_region = file_loop.map(|(start, end)| LoopRegion { start, end, crossfade_ms: 0.0 });
-    }
-    let prepared = if prep.is_noop() { None } else { Some(prep::prepare(&prep, input).map_err(|e| e.at("prep"))?) };
+    let prep = &preset.prep;
+    let prepared = if prep.is_noop() && file_loop.is_none() {
+        None
+    } else {
+        Some(prep::prepare_with_file_loop(prep, input, file_loop).map_err(|e| e.at("prep"))?)
+    };
     let clip = prepared.as_ref().map_or(input, |p| &p.clip);
     let r = Chain::new(preset, clip.channel_count(), clip.sample_rate, clip.frames())?.process_clip(clip)?;
     let mut export_meta = ExportMeta::default();
@@ -107,12 +109,21 @@ pub struct Tap {
 /// the one before it); the seeds of every stage are those of the whole chain, so `signal` is exactly what the full
 /// chain computes after that stage. Per-stage figures of the cut chains are not computed.
 pub fn render_tap(preset: &Preset, input: &Clip, stage: usize) -> Result<Tap> {
+    render_tap_with_loop(preset, input, None, stage)
+}
+
+/// Like [`render_tap`], for a sound whose file holds a loop of its own (as [`render_with_loop`]): the preparation
+/// is the render's, `"loop_region": "file"` and its crossfade included.
+pub fn render_tap_with_loop(preset: &Preset, input: &Clip, file_loop: Option<(u64, u64)>, stage: usize) -> Result<Tap> {
     let n = preset.stages.len();
     if stage >= n {
         return Err(Error::param("stage", stage, format!("a stage index from 0 to {}", n as i64 - 1)));
     }
-    let prepared =
-        if preset.prep.is_noop() { None } else { Some(prep::prepare(&preset.prep, input).map_err(|e| e.at("prep"))?) };
+    let prepared = if preset.prep.is_noop() && file_loop.is_none() {
+        None
+    } else {
+        Some(prep::prepare_with_file_loop(&preset.prep, input, file_loop).map_err(|e| e.at("prep"))?)
+    };
     let clip = prepared.as_ref().map_or(input, |p| &p.clip);
     let run = |len: usize| -> Result<Processed> {
         let mut cut = preset.clone();

@@ -246,9 +246,22 @@ fn prep(u: &mut Unstructured) -> ArbResult<Value> {
         p.insert("normalize".into(), n);
     }
     if u.ratio(1, 3)? {
-        let start = in_range(u, 0.0, 4_096.0, true)?;
-        let end = in_range(u, 0.0, 4_096.0, true)?;
-        let region = json!({ "start": start, "end": end, "crossfade_ms": in_range(u, 0.0, 1_000.0, false)? });
+        // A point: source frames, or seconds from the start or the end, or a fraction of the length.
+        let point = |u: &mut Unstructured| -> ArbResult<Value> {
+            Ok(match u.int_in_range(0..=3)? {
+                0 => in_range(u, 0.0, 4_096.0, true)?,
+                1 => json!({ "seconds": in_range(u, 0.0, 0.2, false)? }),
+                2 => json!({ "seconds_from_end": in_range(u, 0.0, 0.2, false)? }),
+                _ => json!({ "fraction": in_range(u, 0.0, 1.0, false)? }),
+            })
+        };
+        let region = if u.ratio(1, 8)? {
+            json!({ "from": "file", "crossfade_ms": in_range(u, 0.0, 1_000.0, false)?,
+                    "if_missing": if u.arbitrary()? { "warn" } else { "error" } })
+        } else {
+            let (start, end) = (point(u)?, point(u)?);
+            json!({ "start": start, "end": end, "crossfade_ms": in_range(u, 0.0, 1_000.0, false)? })
+        };
         p.insert("loop_region".into(), region);
     }
     Ok(Value::Object(p))

@@ -199,6 +199,7 @@ impl Lane {
         levels: &mut LevelsAcc,
         sqnr: &mut SqnrAcc,
         stats: Option<&mut [StageStats]>,
+        audition_output: bool,
     ) {
         if let (Some(tap), Some(stats), Some(r)) = (&mut self.rate_tap, stats, self.rate_at) {
             if tap.expander.is_none() {
@@ -219,7 +220,9 @@ impl Lane {
         self.pending_input.drain(..n);
         self.pending_audition.drain(..n);
         out.export[ch].extend_from_slice(&self.export_buf);
-        out.audition[ch].extend_from_slice(&self.audition_buf);
+        if audition_output {
+            out.audition[ch].extend_from_slice(&self.audition_buf);
+        }
     }
 }
 

@@ -87,6 +87,8 @@ pub struct Chain {
     stats: Vec<StageStats>,
     /// Whether the per-stage figures are accounted ([`Chain::without_stage_stats`] turns them off).
     stage_stats: bool,
+    /// Whether [`ChainOutput::audition`] is filled ([`Chain::without_audition_output`] turns it off).
+    audition_output: bool,
 }
 
 impl Chain {
@@ -268,7 +270,16 @@ impl Chain {
             sqnr: SqnrAcc::default(),
             stats,
             stage_stats: true,
+            audition_output: true,
         })
+    }
+
+    /// The same chain leaving [`ChainOutput::audition`] empty: for callers that write the export and read only the
+    /// report (the CLI's streaming render), which then skip one copy of every sample. The report (levels, SQNR) and
+    /// the export are the same either way.
+    pub fn without_audition_output(mut self) -> Self {
+        self.audition_output = false;
+        self
     }
 
     /// The same chain without per-stage figures (the report's `stages` then has no SQNR and no codes): for callers
@@ -320,6 +331,7 @@ impl Chain {
                 &mut self.output_levels,
                 &mut self.sqnr,
                 self.stage_stats.then_some(&mut self.stats[..]),
+                self.audition_output,
             );
         }
     }
@@ -347,6 +359,7 @@ impl Chain {
                 &mut self.output_levels,
                 &mut self.sqnr,
                 self.stage_stats.then_some(&mut self.stats[..]),
+                self.audition_output,
             );
         }
         self.report()

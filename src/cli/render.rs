@@ -36,6 +36,10 @@ Sharding: --shard K/N renders the inputs whose output path (relative to --out-di
 8 bytes, mod N): N jobs with the same command line and K = 1..N split a batch with no coordinator, whatever order the
 file system lists the files in; together they write exactly the files (and bytes) of one run.
 
+Loops: a preset's prep.loop_region may place its points on each sound ({\"seconds\": s}, {\"seconds_from_end\": s},
+{\"fraction\": f}, rounded half away from zero at the file's rate) or take the file's own loop (\"file\"); a sound the
+loop does not fit, or without a loop of its own, fails alone (exit 3) with the field and the sound's length.
+
 Warnings (a truncated file, damaged metadata, preparation notes, non-finite samples) are printed as \"warn\" lines and
 listed under \"warnings\" in --json; --strict makes any warning a failure of that file (nothing written).
 
@@ -398,6 +402,9 @@ pub fn run(args: Args) -> Result<(), Failure> {
         o
     };
     let outcomes: Vec<Outcome> = match args.jobs {
+        // One file (or one job at a time) needs no thread pool: idle pool threads looking for work take CPU time
+        // from the render on a busy machine. The outputs are the same bytes either way.
+        _ if jobs.len() <= 1 || args.jobs == Some(1) => jobs.iter().map(work).collect(),
         Some(n) => rayon::ThreadPoolBuilder::new()
             .num_threads(n.max(1))
             .build()

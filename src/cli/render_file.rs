@@ -71,6 +71,13 @@ pub(super) fn read_input(path: &Path) -> Result<Input, Failure> {
     Ok(Input { clip: d.clip, file_loop: d.file_loop, warnings: d.warnings })
 }
 
+/// Export frames the streaming render hands to its writer thread at once (four blocks; about 128 KiB a channel as
+/// floats).
+const SEND_FRAMES: usize = 4 * stairstep::stages::BLOCK;
+
+/// Bytes of the streaming render's read and write buffers.
+const IO_BUFFER: usize = 64 << 10;
+
 /// Renders in blocks, from file to file, when nothing needs the whole sound at once: a byte-aligned WAV input
 /// without loops, a preset without asset preparation (trim, normalisation, loops need the whole sound), a
 /// byte-aligned WAV export. Memory stays at a few blocks whatever the length. `Ok(None)`: use the in-memory path.
@@ -92,14 +99,19 @@ pub(super) fn render_streaming(
     }
     let input_err = |e: std::io::Error| Failure::new(EXIT_INPUT, e.to_string());
     let file = std::fs::File::open(&job.input).map_err(input_err)?;
-    let reader = StreamReader::open(std::io::BufReader::with_capacity(1 << 20, file))
+    // Buffers of 64 KiB: the reader asks for a block (4,096 frames) at a time and the writer gets a batch of
+    // SEND_FRAMES frames, which goes past a buffer smaller than itself without being copied into it; megabyte
+    // buffers only cost page faults and copies.
+    let reader = StreamReader::open(std::io::BufReader::with_capacity(IO_BUFFER, file))
         .map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
     let Some(mut reader) = reader else { return Ok(None) };
     warnings.append(&mut reader.warnings);
     strict_check(rules, warnings)?;
     let f = reader.format().clone();
     let (ch, rate, frames) = (f.channels as usize, f.sample_rate, reader.frames());
-    let mut chain = Chain::new(preset, ch, rate, frames).map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?;
+    let mut chain = Chain::new(preset, ch, rate, frames)
+        .map_err(|e| Failure::new(EXIT_INPUT, e.to_string()))?
+        .without_audition_output();
     if let Some(p) = progress {
         p.set_length(frames as u64);
     }
@@ -110,7 +122,7 @@ pub(super) fn render_streaming(
     let mut stage_error = None;
     write_atomic_with(&job.output, rules.replace, |file| {
         let io_err = |e: stairstep::Error| std::io::Error::other(e.to_string());
-        let sink = std::io::BufWriter::with_capacity(1 << 20, HashingWriter::new(&mut *file, rules.hash));
+        let sink = std::io::BufWriter::with_capacity(IO_BUFFER, HashingWriter::new(&mut *file, rules.hash));
         let mut w =
             StreamWriter::new(sink, *encoding, chain.export_rate(), ch, chain.export_frames(), Default::default())
                 .map_err(io_err)?;
@@ -127,8 +139,11 @@ pub(super) fn render_streaming(
                 }
                 w.finish().map_err(io_err)
             });
+            // Export blocks are handed over in batches of about SEND_FRAMES frames: each hand-over wakes the other
+            // thread, which on a busy machine can cost a scheduler time slice, while the bytes do not depend on
+            // where the stream is cut. The audition is not written, so the chain does not hand it out.
             let send = |out: &mut ChainOutput| {
-                let empty = spare.try_recv().unwrap_or_else(|_| vec![Vec::with_capacity(BLOCK); ch]);
+                let empty = spare.try_recv().unwrap_or_else(|_| vec![Vec::with_capacity(SEND_FRAMES + BLOCK); ch]);
                 let full = std::mem::replace(&mut out.export, empty);
                 out.clear();
                 to_writer.send(full).is_ok()
@@ -147,7 +162,7 @@ pub(super) fn render_streaming(
                     break;
                 }
                 chain.process_block(&block, &mut out);
-                if !send(&mut out) {
+                if out.export[0].len() >= SEND_FRAMES && !send(&mut out) {
                     fed = false;
                     break;
                 }

@@ -6,8 +6,10 @@
 //! 1. **sanitize**: NaN becomes 0 and ±Inf becomes ±1.0, exactly as [`crate::sample::sanitize`] does;
 //! 2. **channels** ([`ChannelMode`]): keep, fold down to mono, or duplicate to stereo;
 //! 3. **trim** ([`TrimParams`]): leading and trailing quiet frames are cut, keeping a margin;
-//! 4. **loop crossfade** ([`LoopRegion`]): the loop points, given in *source* frames, move with the trim; with a
-//!    crossfade the end of the loop is blended with the audio before its start;
+//! 4. **loop crossfade** ([`LoopSetting`]): the loop points — given in *source* frames (they move with the trim),
+//!    relative to the trimmed sound (seconds from its start or end, a fraction of its length), or the input file's
+//!    own loop — become frames of the trimmed sound; with a crossfade the end of the loop is blended with the audio
+//!    before its start (see [`LoopRegion`]);
 //! 5. **fades** ([`FadeParams`]): fade-in at the new start, fade-out at the new end;
 //! 6. **normalise** ([`Normalize`]): one gain for the whole clip, to a peak level or to an integrated loudness.
 //!
@@ -27,8 +29,10 @@
 //! }
 //! ```
 //! `channels` is `"keep"`, `"duplicate"` or `{ "mono": law }`; `normalize` is
-//! `{ "kind": "peak", "target_dbfs": -1 }` or `{ "kind": "loudness", "target_lufs": -16 }`. Leave a field out to skip
-//! its step; unknown fields are errors.
+//! `{ "kind": "peak", "target_dbfs": -1 }` or `{ "kind": "loudness", "target_lufs": -16 }`. `loop_region` also takes
+//! `{ "start": { "seconds": 0.25 }, "end": { "seconds_from_end": 0.1 } }`, `{ "fraction": 0.9 }` points, and
+//! `"file"` (the input file's own loop): see [`region`](LoopSetting) for every form and the rounding rule. Leave a
+//! field out to skip its step; unknown fields are errors.
 
 use crate::audio::Clip;
 use crate::error::{check_range_f, Error, Result};
@@ -36,10 +40,14 @@ use serde::{Deserialize, Serialize};
 use std::f64::consts::FRAC_PI_2;
 
 mod loops;
+mod region;
 mod steps;
 
 pub use loops::{rescale_loop, snap_to_block};
-pub use steps::prepare;
+pub use region::{
+    FileLoop, IfMissing, LoopPoint, LoopRegion, LoopSetting, LoopSource, CROSSFADE_MS, LOOP_FRACTION, LOOP_SECONDS,
+};
+pub use steps::{prepare, prepare_with_file_loop};
 
 // ---------------------------------------------------------------------------------------------------------------------
 // Parameters
@@ -242,31 +250,6 @@ fn default_lufs() -> f64 {
     -16.0
 }
 
-/// Loop points in frames of the *source* clip (before the trim), `start` inclusive and `end` exclusive: playback
-/// runs to frame `end − 1` and continues at `start`.
-///
-/// # Crossfade
-/// With `crossfade_ms > 0`, `n = round(crossfade_ms · rate / 1000)` frames (at least 1) at the end of the loop are
-/// blended with the `n` frames just before `start`, with equal-power weights:
-/// `y[end − n + i] = cos θᵢ · x[end − n + i] + sin θᵢ · x[start − n + i]`, `θᵢ = (π/2)·(i + 1)/n`, `i` in `0..n`, the
-/// last weight pair being exactly (0, 1). So the loop's last frame becomes a copy of frame `start − 1`, and the jump
-/// from `end − 1` back to `start` is the sound's own step from `start − 1` to `start`: no seam. The first blended frame
-/// already carries a little of the pre-start audio, so entering the crossfade is smooth too. Only frames inside the
-/// loop change; the frames before `start` are read, not changed, and must exist after the trim (`n ≤ start`) and
-/// `n` must not exceed the loop's length. Equal-power weights keep the level of uncorrelated material; on material
-/// that is in phase at both places the middle of the crossfade is up to 3 dB louder.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct LoopRegion {
-    /// First frame of the loop, in source frames (required).
-    pub start: u64,
-    /// Frame after the last frame of the loop, in source frames (required); `start < end ≤ frames`.
-    pub end: u64,
-    /// Crossfade length in milliseconds, 0 to 1,000; default 0 (none). 10 to 50 ms smooths most seams.
-    #[serde(default)]
-    pub crossfade_ms: f64,
-}
-
 /// All preparation steps; the default does nothing. See the [module docs](self) for the order and the JSON form.
 #[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
 #[serde(default, deny_unknown_fields)]
@@ -285,9 +268,10 @@ pub struct PrepParams {
     /// Normalisation; default none.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub normalize: Option<Normalize>,
-    /// Loop points in source frames; default none.
+    /// Loop points (source frames, or relative to the sound) or the file's own loop; default none (a file's own
+    /// loop is kept, without crossfade). See [`LoopSetting`].
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub loop_region: Option<LoopRegion>,
+    pub loop_region: Option<LoopSetting>,
 }
 
 impl PrepParams {
@@ -318,8 +302,7 @@ impl PrepParams {
             None => {}
         }
         if let Some(l) = &self.loop_region {
-            check_loop_order("loop_region", l.start, l.end)?;
-            check_range_f("loop_region.crossfade_ms", l.crossfade_ms, 0.0, 1000.0, " ms")?;
+            l.validate()?;
         }
         Ok(())
     }
@@ -437,7 +420,7 @@ mod tests {
         assert_eq!(p.trim, Some(TrimParams { threshold_dbfs: -50.0, margin_ms: 10.0 }));
         assert_eq!(p.fade_out, Some(FadeParams { ms: 150.0, curve: FadeCurve::Exponential }));
         assert_eq!(p.normalize, Some(Normalize::Loudness { target_lufs: -16.0 }));
-        assert_eq!(p.loop_region, Some(LoopRegion { start: 4410, end: 48510, crossfade_ms: 20.0 }));
+        assert_eq!(p.loop_region, Some(LoopRegion::frames(4410, 48510, 20.0).into()));
         let back: PrepParams = serde_json::from_str(&serde_json::to_string(&p).unwrap()).unwrap();
         assert_eq!(back, p);
         assert_eq!(serde_json::from_str::<PrepParams>("{}").unwrap(), PrepParams::default());
@@ -499,10 +482,7 @@ mod tests {
                 "normalize.target_lufs",
             ),
             (
-                PrepParams {
-                    loop_region: Some(LoopRegion { start: 0, end: 10, crossfade_ms: 1001.0 }),
-                    ..Default::default()
-                },
+                PrepParams { loop_region: Some(LoopRegion::frames(0, 10, 1001.0).into()), ..Default::default() },
                 "loop_region.crossfade_ms",
             ),
         ];

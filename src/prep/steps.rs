@@ -6,25 +6,62 @@ use crate::db::amp_db_portable as amp_db;
 use crate::sample::sanitize;
 use std::f64::consts::FRAC_PI_2;
 
-/// Runs the preparation steps of `params` on `clip` (see the [module docs](super) for the order).
+/// Runs the preparation steps of `params` on `clip` (see the [module docs](super) for the order), for a sound without
+/// a loop of its own: [`prepare_with_file_loop`] with `None`.
 ///
 /// # Errors
 /// A parameter out of range; an invalid clip (rate, channel count, unequal lengths); a trim that would remove
 /// everything; loop points outside the sound, inverted, empty, cut by the trim or too short for the crossfade;
 /// normalising silence (or loudness of a clip shorter than 400 ms). Every message names the parameter and value.
 pub fn prepare(params: &PrepParams, clip: &Clip) -> Result<Prepared> {
+    prepare_with_file_loop(params, clip, None)
+}
+
+/// Like [`prepare`], for a sound whose file holds a loop of its own, `file_loop` (source frames, end exclusive): the
+/// loop of `"loop_region": "file"`, and the loop kept (without crossfade) when the preset sets no `loop_region`.
+///
+/// # Errors
+/// Those of [`prepare`]; and, for `"file"`, a file without a loop (unless `"if_missing": "warn"`, which notes it).
+pub fn prepare_with_file_loop(params: &PrepParams, clip: &Clip, file_loop: Option<(u64, u64)>) -> Result<Prepared> {
     params.validate()?;
     clip.check()?;
     let rate = clip.sample_rate;
     let source_frames = clip.frames() as u64;
     let mut notes = Vec::new();
-    if let Some(l) = &params.loop_region {
-        if l.end > source_frames {
-            return Err(Error::param(
-                "loop_region.end",
-                l.end,
-                format!("at most {source_frames}, the sound's length in frames (end is exclusive)"),
-            ));
+    // The loop this sound gets: the preset's region, the file's own loop, or none.
+    let region: Option<LoopRegion> = match (&params.loop_region, file_loop) {
+        (Some(LoopSetting::Region(r)), _) => Some(r.clone()),
+        (Some(LoopSetting::File(f)), Some((start, end))) => Some(LoopRegion::frames(start, end, f.crossfade_ms)),
+        (Some(LoopSetting::File(f)), None) => match f.if_missing {
+            IfMissing::Error => {
+                return Err(Error::param(
+                    "loop_region",
+                    "\"file\"",
+                    "a file with a loop of its own (a WAV `smpl` loop, an AIFF sustain loop): this one has none \
+                     (give the loop in the preset, or add \"if_missing\": \"warn\" to render such files without one)",
+                ))
+            }
+            IfMissing::Warn => {
+                notes.push("the file has no loop of its own: rendered without a loop".into());
+                None
+            }
+        },
+        (None, l) => l.map(|(start, end)| LoopRegion::frames(start, end, 0.0)),
+    };
+    if let Some(LoopRegion { start: LoopPoint::Frame(s), end: LoopPoint::Frame(e), .. }) = &region {
+        check_loop_order("loop_region", *s, *e)?; // a file's loop (a preset's was checked by `validate`)
+    }
+    for (name, p) in region.iter().flat_map(|l| [("loop_region.start", l.start), ("loop_region.end", l.end)]) {
+        // Frames are checked against the source before anything runs (relative points after the trim).
+        match p {
+            LoopPoint::Frame(f) if f > source_frames => {
+                return Err(Error::param(
+                    name,
+                    f,
+                    format!("at most {source_frames}, the sound's length in frames (end is exclusive)"),
+                ))
+            }
+            _ => {}
         }
     }
 
@@ -46,14 +83,18 @@ pub fn prepare(params: &PrepParams, clip: &Clip) -> Result<Prepared> {
     }
     let frames = keep_end - keep_start;
 
-    // 4. Loop points follow the trim; crossfade.
+    // 4. Loop points follow the trim (relative ones are placed on the trimmed sound); crossfade.
     let mut loop_out = None;
-    if let Some(l) = &params.loop_region {
-        if l.start < keep_start || l.end > keep_end {
+    if let Some(l) = &region {
+        let keep = (keep_start, keep_end);
+        let trimmed = params.trim.is_some();
+        let start = l.start.resolve("loop_region.start", rate, keep, trimmed)?;
+        let end = l.end.resolve("loop_region.end", rate, keep, trimmed)?;
+        if start < keep_start || end > keep_end {
             let t = params.trim.clone().unwrap_or_default();
             return Err(Error::param(
                 "loop_region",
-                format!("{}..{}", l.start, l.end),
+                format!("{start}..{end}"),
                 format!(
                     "a region inside the trimmed sound, source frames {keep_start}..{keep_end}: the trim \
                      (threshold {} dBFS, margin {} ms) would cut into the loop",
@@ -61,7 +102,22 @@ pub fn prepare(params: &PrepParams, clip: &Clip) -> Result<Prepared> {
                 ),
             ));
         }
-        let (s, e) = (l.start - keep_start, l.end - keep_start);
+        let relative = !matches!((l.start, l.end), (LoopPoint::Frame(_), LoopPoint::Frame(_)));
+        if relative && start >= end {
+            return Err(Error::param(
+                "loop_region",
+                format!("{}..{}", l.start, l.end),
+                format!(
+                    "start < end: here start is frame {} and end frame {} of the {}sound's {frames} frames \
+                     ({:.3} s at {rate} Hz)",
+                    start - keep_start,
+                    end - keep_start,
+                    if trimmed { "trimmed " } else { "" },
+                    frames as f64 / rate as f64
+                ),
+            ));
+        }
+        let (s, e) = (start - keep_start, end - keep_start);
         if l.crossfade_ms > 0.0 {
             let n = ms_to_frames(l.crossfade_ms, rate).max(1);
             let room = s.min(e - s);

@@ -302,7 +302,7 @@ impl Session {
         if self.render.is_none() {
             return Err(JsError::new("nothing rendered yet"));
         }
-        let t = render::render_tap(&self.preset, &self.source, stage).map_err(js_err)?;
+        let t = render::render_tap_with_loop(&self.preset, &self.source, self.file_loop, stage).map_err(js_err)?;
         let v = serde_json::json!({ "stage": t.stage, "sqnr_db": t.sqnr_db });
         self.tap = Some(t);
         Ok(v.to_string())
@@ -357,7 +357,8 @@ impl Session {
         let tap = match &self.tap {
             Some(t) if t.stage == stage => t,
             _ => {
-                owned = render::render_tap(&self.preset, &self.source, stage).map_err(js_err)?;
+                owned =
+                    render::render_tap_with_loop(&self.preset, &self.source, self.file_loop, stage).map_err(js_err)?;
                 &owned
             }
         };

@@ -13,8 +13,18 @@ function num(id, value, min, max, step, unit, onChange) {
   return [box, el('span', { class: 'unit' }, unit)];
 }
 
+// A loop as the preset holds it, in words: frames, the file's own loop, or the relative forms a preset file may hold
+// (`{ "seconds": s }`, `{ "seconds_from_end": s }`, `{ "fraction": f }`; the core places them on each sound).
+function loopText(loop) {
+  if (loop === 'file' || loop.from === 'file') return "the file's own loop" + (state.info?.fileLoop ? '' : ' (this sound has none)');
+  const point = (p) => (typeof p === 'number' ? `frame ${p}` : p.seconds !== undefined ? `${p.seconds} s`
+    : p.seconds_from_end !== undefined ? `${p.seconds_from_end} s before the end` : `${p.fraction} of the length`);
+  return `${point(loop.start)} to ${point(loop.end)}`;
+}
+
 export function renderPrep() {
   const prep = state.preset.prep ?? (state.preset.prep = {});
+  if (prep.loop_region === 'file') prep.loop_region = { from: 'file', crossfade_ms: 0 };
   const changed = () => { renderPrep(); requestRender(); };
   const row = (label, ...controls) => el('div', { class: 'prep-row' }, el('span', {}, label), el('span', { class: 'inline' }, ...controls));
   const current = Object.keys(CHANNEL_MODES).find((k) => JSON.stringify(CHANNEL_MODES[k]) === JSON.stringify(prep.channels ?? 'keep'));
@@ -67,7 +77,12 @@ export function renderPrep() {
         changed();
         $('prep-loop-set').focus();
       } }, 'Use selection'),
-    ...(loop ? [...num('prep-loop-xfade', loop.crossfade_ms ?? 0, 0, 1000, 1, 'ms crossfade', (v) => { loop.crossfade_ms = v; requestRender(); }),
+    el('button', { type: 'button', id: 'prep-loop-file',
+      title: "Export the sound file's own loop (a WAV smpl loop); a file without one is refused",
+      onclick: () => { prep.loop_region = { from: 'file', crossfade_ms: loop?.crossfade_ms ?? 0 }; changed(); $('prep-loop-file').focus(); } },
+    "File's loop"),
+    ...(loop ? [el('span', { class: 'note', id: 'prep-loop-form' }, loopText(loop)),
+      ...num('prep-loop-xfade', loop.crossfade_ms ?? 0, 0, 1000, 1, 'ms crossfade', (v) => { loop.crossfade_ms = v; requestRender(); }),
       el('button', { type: 'button', id: 'prep-loop-remove', 'aria-label': 'Remove the loop', onclick: () => { delete prep.loop_region; changed(); $('prep-loop-set').focus(); } }, '✕')] : []),
       el('span', { class: 'note', id: 'prep-loop-note', role: 'alert' })),
   );

@@ -295,27 +295,29 @@ pub(super) fn decode_frames(data: &[u8], f: &WavFormat, warnings: &mut Vec<Strin
     }
     let mut out: Vec<Vec<f32>> = (0..ch).map(|_| Vec::with_capacity(frames)).collect();
     let width = frame / ch;
-    let table: Option<Vec<f32>> = match f.sub_format {
-        WAVE_FORMAT_MULAW => Some((0..=255u8).map(|c| ulaw_to_linear(c) as f32 / 32768.0).collect()),
-        WAVE_FORMAT_ALAW => Some((0..=255u8).map(|c| alaw_to_linear(c) as f32 / 32768.0).collect()),
-        _ => None,
-    };
-    let decode: fn(&[u8]) -> f32 = match (f.sub_format, width) {
-        (WAVE_FORMAT_IEEE_FLOAT, 4) => |b| f32::from_le_bytes([b[0], b[1], b[2], b[3]]),
-        (WAVE_FORMAT_IEEE_FLOAT, _) => |b| f64::from_le_bytes([b[0], b[1], b[2], b[3], b[4], b[5], b[6], b[7]]) as f32,
-        // 8-bit WAV samples are unsigned: 128 is silence.
-        (_, 1) => |b| (b[0] as f32 - 128.0) / 128.0,
-        (_, 2) => |b| i16::from_le_bytes([b[0], b[1]]) as f32 / 32768.0,
-        (_, 3) => |b| (i32::from_le_bytes([0, b[0], b[1], b[2]]) >> 8) as f32 / 8_388_608.0,
-        _ => |b| (i32::from_le_bytes([b[0], b[1], b[2], b[3]]) as f64 / 2_147_483_648.0) as f32,
-    };
-    for fr in data.chunks_exact(frame) {
-        for (c, s) in out.iter_mut().zip(fr.chunks_exact(width)) {
-            c.push(match &table {
-                Some(t) => t[s[0] as usize],
-                None => decode(s),
-            });
+    let data = &data[..frames * frame];
+    // One pass per channel, with the conversion known at compile time (no call through a pointer per sample).
+    fn each<const W: usize>(data: &[u8], frame: usize, out: &mut [Vec<f32>], f: impl Fn([u8; W]) -> f32) {
+        for (c, o) in out.iter_mut().enumerate() {
+            let at = c * W;
+            o.extend(data.chunks_exact(frame).map(|fr| f(fr[at..at + W].try_into().expect("W bytes"))));
         }
+    }
+    match (f.sub_format, width) {
+        (WAVE_FORMAT_MULAW | WAVE_FORMAT_ALAW, 1) => {
+            let law: fn(u8) -> i16 = if f.sub_format == WAVE_FORMAT_MULAW { ulaw_to_linear } else { alaw_to_linear };
+            let table: Vec<f32> = (0..=255u8).map(|c| law(c) as f32 / 32768.0).collect();
+            each::<1>(data, frame, &mut out, |[b]| table[b as usize]);
+        }
+        (WAVE_FORMAT_IEEE_FLOAT, 4) => each::<4>(data, frame, &mut out, f32::from_le_bytes),
+        (WAVE_FORMAT_IEEE_FLOAT, _) => each::<8>(data, frame, &mut out, |b| f64::from_le_bytes(b) as f32),
+        // 8-bit WAV samples are unsigned: 128 is silence.
+        (_, 1) => each::<1>(data, frame, &mut out, |[b]| (b as f32 - 128.0) / 128.0),
+        (_, 2) => each::<2>(data, frame, &mut out, |b| i16::from_le_bytes(b) as f32 / 32768.0),
+        (_, 3) => {
+            each::<3>(data, frame, &mut out, |[a, b, c]| (i32::from_le_bytes([0, a, b, c]) >> 8) as f32 / 8_388_608.0)
+        }
+        _ => each::<4>(data, frame, &mut out, |b| (i32::from_le_bytes(b) as f64 / 2_147_483_648.0) as f32),
     }
     out
 }

@@ -224,22 +224,41 @@ pub(super) fn header(
 /// Appends the sample bytes of a block of frames (one slice per channel) in a byte-aligned encoding.
 pub(super) fn body_append<C: AsRef<[f32]>>(enc: WavEncoding, block: &[C], out: &mut Vec<u8>) {
     let frames = block.first().map_or(0, |c| c.as_ref().len());
-    out.reserve(frames * block.len() * bytes_per_sample(enc));
-    for i in 0..frames {
-        for c in block {
-            let x = sanitize(c.as_ref()[i]);
-            match enc {
-                // 8-bit WAV samples are unsigned: code + 128.
-                WavEncoding::PcmU8 => out.push((pcm_code(x, 8) + 128) as u8),
-                WavEncoding::PcmS16 => out.extend_from_slice(&(pcm_code(x, 16) as i16).to_le_bytes()),
-                WavEncoding::PcmS24 => out.extend_from_slice(&pcm_code(x, 24).to_le_bytes()[..3]),
-                WavEncoding::PcmS32 => out.extend_from_slice(&pcm_code(x, 32).to_le_bytes()),
-                WavEncoding::Float32 => out.extend_from_slice(&x.to_le_bytes()),
-                WavEncoding::Mulaw => out.push(linear_to_ulaw(pcm_code(x, 16) as i16)),
-                WavEncoding::Alaw => out.push(linear_to_alaw(pcm_code(x, 16) as i16)),
-                WavEncoding::ImaAdpcm | WavEncoding::MsAdpcm | WavEncoding::G721 | WavEncoding::Gsm610 => {}
+    let ch = block.len();
+    // One pass per channel into the interleaved bytes, with the encoding chosen once (not per sample).
+    fn each<C: AsRef<[f32]>, const W: usize>(
+        block: &[C],
+        frames: usize,
+        out: &mut Vec<u8>,
+        f: impl Fn(f32) -> [u8; W],
+    ) {
+        let start = out.len();
+        let ch = block.len();
+        out.resize(start + frames * ch * W, 0);
+        let body = &mut out[start..];
+        for (c, x) in block.iter().enumerate() {
+            let at = c * W;
+            for (fr, &x) in body.chunks_exact_mut(ch * W).zip(&x.as_ref()[..frames]) {
+                fr[at..at + W].copy_from_slice(&f(sanitize(x)));
             }
         }
+    }
+    if ch == 0 {
+        return;
+    }
+    match enc {
+        // 8-bit WAV samples are unsigned: code + 128.
+        WavEncoding::PcmU8 => each(block, frames, out, |x| [(pcm_code(x, 8) + 128) as u8]),
+        WavEncoding::PcmS16 => each(block, frames, out, |x| (pcm_code(x, 16) as i16).to_le_bytes()),
+        WavEncoding::PcmS24 => each(block, frames, out, |x| {
+            let [a, b, c, _] = pcm_code(x, 24).to_le_bytes();
+            [a, b, c]
+        }),
+        WavEncoding::PcmS32 => each(block, frames, out, |x| pcm_code(x, 32).to_le_bytes()),
+        WavEncoding::Float32 => each(block, frames, out, f32::to_le_bytes),
+        WavEncoding::Mulaw => each(block, frames, out, |x| [linear_to_ulaw(pcm_code(x, 16) as i16)]),
+        WavEncoding::Alaw => each(block, frames, out, |x| [linear_to_alaw(pcm_code(x, 16) as i16)]),
+        WavEncoding::ImaAdpcm | WavEncoding::MsAdpcm | WavEncoding::G721 | WavEncoding::Gsm610 => {}
     }
 }
 

@@ -221,7 +221,7 @@ fn loudness_normalisation_reports_its_gain() {
 // ---- loops
 
 fn looped(start: u64, end: u64, crossfade_ms: f64) -> PrepParams {
-    PrepParams { loop_region: Some(LoopRegion { start, end, crossfade_ms }), ..Default::default() }
+    PrepParams { loop_region: Some(LoopRegion::frames(start, end, crossfade_ms).into()), ..Default::default() }
 }
 
 #[test]
@@ -249,18 +249,15 @@ fn loop_points_move_with_the_trim() {
         *v = 0.5;
     }
     let c = clip(1000, vec![x]);
-    let p =
-        PrepParams { loop_region: Some(LoopRegion { start: 300, end: 700, crossfade_ms: 0.0 }), ..trim(-60.0, 10.0) };
+    let p = PrepParams { loop_region: Some(LoopRegion::frames(300, 700, 0.0).into()), ..trim(-60.0, 10.0) };
     let out = run(&p, &c);
     assert_eq!(out.report.trimmed_start_frames, 190);
     assert_eq!(out.report.loop_region, Some((110, 510)));
     // A trim that cuts into the loop is an error naming the values.
-    let p =
-        PrepParams { loop_region: Some(LoopRegion { start: 100, end: 700, crossfade_ms: 0.0 }), ..trim(-60.0, 10.0) };
+    let p = PrepParams { loop_region: Some(LoopRegion::frames(100, 700, 0.0).into()), ..trim(-60.0, 10.0) };
     let e = err(&p, &c);
     assert!(e.contains("100..700") && e.contains("190..810") && e.contains("cut into the loop"), "{e}");
-    let p =
-        PrepParams { loop_region: Some(LoopRegion { start: 300, end: 900, crossfade_ms: 0.0 }), ..trim(-60.0, 10.0) };
+    let p = PrepParams { loop_region: Some(LoopRegion::frames(300, 900, 0.0).into()), ..trim(-60.0, 10.0) };
     assert!(err(&p, &c).contains("300..900"));
 }
 
@@ -359,7 +356,7 @@ mod props {
         let loop_region = proptest::option::of((0u64..8500, 0u64..8500, any::<bool>(), ms()).prop_map(
             |(a, b, ordered, crossfade_ms)| {
                 let (start, end) = if ordered { (a.min(b), a.max(b)) } else { (a, b) };
-                LoopRegion { start, end, crossfade_ms }
+                LoopSetting::from(LoopRegion::frames(start, end, crossfade_ms))
             },
         ));
         (channels, trim, fade(), fade(), normalize, loop_region).prop_map(

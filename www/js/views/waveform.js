@@ -72,10 +72,11 @@ export function drawWave() {
     const a = key === 'fade_in' ? 0 : total - len;
     g.beginPath(); g.moveTo(fx(a), 2 + (1 - from) * 20); g.lineTo(fx(a + len), 2 + (1 - to) * 20); g.stroke();
   }
-  if (prep.loop_region && state.report?.prep) {
-    const off = state.report.prep.trimmed_start_frames;
+  // Where the core placed the loop on the prepared sound (any form: frames, seconds, fraction, the file's own).
+  const placed = state.report?.prep?.loop_region;
+  if (prep.loop_region && placed) {
     g.setLineDash([4, 3]);
-    for (const f of [prep.loop_region.start - off, prep.loop_region.end - off]) { g.beginPath(); g.moveTo(fx(f), 0); g.lineTo(fx(f), plotH); g.stroke(); }
+    for (const f of placed) { g.beginPath(); g.moveTo(fx(f), 0); g.lineTo(fx(f), plotH); g.stroke(); }
     g.setLineDash([]);
   }
   if (audio.playing) {
