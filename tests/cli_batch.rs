@@ -184,3 +184,38 @@ fn analyze_and_sweep_print_json_that_scripts_can_read() {
     let bad = run(&["analyze", "q.wav", "--reference", "h.wav"], t.path());
     assert_eq!(bad.status.code(), Some(3), "{}", String::from_utf8_lossy(&bad.stderr));
 }
+
+/// Two sounds with one stem in one folder (a.wav and a.flac): the default name is refused before anything is written,
+/// with a template that tells them apart; `{input_ext}` does, and both are rendered.
+#[test]
+fn inputs_with_one_stem_need_the_input_extension_in_the_name() {
+    let t = tempfile::tempdir().unwrap();
+    folder_with_sounds(t.path());
+    std::fs::remove_file(t.path().join("in/broken.wav")).unwrap();
+    // A copy of a.wav under another extension: the reader goes by content, as for any misnamed file.
+    std::fs::copy(t.path().join("in/a.wav"), t.path().join("in/a.wave")).unwrap();
+    let clash = run(&["render", "--preset", "p.json", "--recursive", "in", "--out-dir", "o"], t.path());
+    assert_eq!(clash.status.code(), Some(2));
+    let msg = String::from_utf8_lossy(&clash.stderr);
+    assert!(msg.contains("would both be written to") && msg.contains("{input_ext}"), "{msg}");
+    assert!(!t.path().join("o").join("a.wav").exists());
+    let out = run(
+        &[
+            "render",
+            "--preset",
+            "p.json",
+            "--recursive",
+            "in",
+            "--out-dir",
+            "o",
+            "--name",
+            "{dir}/{stem}-{input_ext}.{ext}",
+        ],
+        t.path(),
+    );
+    ok(&out);
+    let (a, b) =
+        (std::fs::read(t.path().join("o/a-wav.wav")).unwrap(), std::fs::read(t.path().join("o/a-wave.wav")).unwrap());
+    assert_eq!(a, b, "the same sound under two names renders to the same bytes");
+    assert!(t.path().join("o/sub/c-wav.wav").exists());
+}

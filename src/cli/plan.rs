@@ -61,7 +61,7 @@ pub(super) fn collect(
     Ok(())
 }
 
-pub(super) const PLACEHOLDERS: [&str; 4] = ["{stem}", "{preset}", "{ext}", "{dir}"];
+pub(super) const PLACEHOLDERS: [&str; 5] = ["{stem}", "{preset}", "{ext}", "{dir}", "{input_ext}"];
 
 /// Refuses a --name template with a placeholder other than [`PLACEHOLDERS`] (or an unclosed brace).
 pub(super) fn check_template(template: &str) -> Result<(), Failure> {
@@ -83,9 +83,15 @@ pub(super) fn check_template(template: &str) -> Result<(), Failure> {
     Ok(())
 }
 
-pub(super) fn expand(template: &str, stem: &str, preset: &str, ext: &str, dir: &Path) -> PathBuf {
+pub(super) fn expand(template: &str, input: &Path, preset: &str, ext: &str, dir: &Path) -> PathBuf {
     let dir = dir.to_string_lossy();
-    let s = template.replace("{stem}", stem).replace("{preset}", preset).replace("{ext}", ext).replace("{dir}", &dir);
+    let input_ext = input.extension().map(|e| e.to_string_lossy().to_lowercase()).unwrap_or_default();
+    let s = template
+        .replace("{stem}", &stem_of(input))
+        .replace("{preset}", preset)
+        .replace("{ext}", ext)
+        .replace("{dir}", &dir)
+        .replace("{input_ext}", &input_ext);
     // An empty {dir} leaves a leading slash: keep outputs inside --out-dir.
     PathBuf::from(s.trim_start_matches('/'))
 }
@@ -130,7 +136,7 @@ pub(super) fn plan(args: &Args, preset: &Preset, export: &ExportFormat) -> Resul
             .into_iter()
             .map(|(input, rel_dir)| {
                 let stem = stem_of(&input);
-                let name = expand(&args.name, &stem, &slug(&preset.name), export.extension(), &rel_dir);
+                let name = expand(&args.name, &input, &slug(&preset.name), export.extension(), &rel_dir);
                 Job { output: dir.join(&name), key: key_of(&name), stem, input }
             })
             .collect(),
@@ -144,7 +150,7 @@ pub(super) fn plan(args: &Args, preset: &Preset, export: &ExportFormat) -> Resul
             return Err(Failure::new(
                 EXIT_USAGE,
                 format!(
-                    "{} and {} would both be written to {}: change --name",
+                    "{} and {} would both be written to {}: change --name (e.g. '{{dir}}/{{stem}}-{{input_ext}}.{{ext}}')",
                     first.display(),
                     j.input.display(),
                     j.output.display()

@@ -21,8 +21,9 @@ use std::sync::mpsc::Sender;
 
 pub const HELP: &str = "\
 Output names: with --out-dir, each output is named by --name, a template with the placeholders {stem} (input file
-name without extension), {preset} (preset name), {ext} (the export format's extension) and {dir} (the input's folder
-relative to the folder given on the command line, for --recursive). Default: {dir}/{stem}.{ext}. A C-array export's
+name without extension), {input_ext} (the input's own extension, lower case: it tells drum.aiff and drum.mp3 apart),
+{preset} (preset name), {ext} (the export format's extension) and {dir} (the input's folder relative to the folder
+given on the command line, for --recursive). Default: {dir}/{stem}.{ext}. A C-array export's
 array name may hold {stem} too (e.g. \"name\":\"sfx_{stem}\"), made a valid C identifier, so that one build can
 include every header.
 
