@@ -1,5 +1,5 @@
 // Stairstep crusher: an AudioWorklet module with the DSP core (WebAssembly) inside; needs no other file.
-// stairstep-source-hash: 74d953dacc5385c54f881223726cd3fbcd0c09365e9bd0409b6c850665599d84
+// stairstep-source-hash: 6b0f074741819db32a887a9135fba5303bf1f9e2f5e709202d33df6756cbca7d
 //   await ctx.audioWorklet.addModule('stairstep-worklet.js');
 //   const node = new AudioWorkletNode(ctx, 'stairstep-crusher', { outputChannelCount: [2],
 //     processorOptions: { preset: 'handheld' } });
