@@ -11,25 +11,14 @@
 
 mod common;
 
-use serde_json::Value;
+use common::libsndfile::{libsndfile_reads, libsndfile_writes, py, same, snr_db};
+
 use stairstep::codec::{g721, ms_adpcm, vox};
 use stairstep::io::{wav, BitOrder, ExportFormat, ExportMeta, SampleLoop, WavEncoding};
 use stairstep::stages::codec::{CodecName, CodecParams, CodecRoundTrip};
 use stairstep::stages::delta::{DeltaModulator, DeltaParams};
 use stairstep::stages::Stage;
 use stairstep::{Clip, Preset};
-
-/// Runs Python with `stdin`; the snippet prints one JSON value.
-fn py(code: &str, stdin: &[u8]) -> Value {
-    let prelude = "import sys, io, json, struct, warnings\nwarnings.simplefilter('ignore')\nimport numpy as np\n\
-                   import soundfile as sf\nb = sys.stdin.buffer.read()\n";
-    let out = common::run_python(&format!("{prelude}{code}"), stdin);
-    serde_json::from_slice(&out).unwrap_or_else(|e| panic!("{e}: {}", String::from_utf8_lossy(&out)))
-}
-
-fn ints(v: &Value) -> Vec<i64> {
-    v.as_array().expect("array").iter().map(|x| x.as_i64().expect("int")).collect()
-}
 
 /// The test signal: speech-like (a few harmonics with a slow vibrato and amplitude swell, plus a little noise and a
 /// loud burst), 16-bit, deterministic; `frames` frames, `channels` channels (the second a shifted copy).
@@ -53,64 +42,6 @@ fn signal(frames: usize, channels: usize) -> Vec<Vec<i16>> {
                 .collect()
         })
         .collect()
-}
-
-fn interleaved_le(ch: &[Vec<i16>]) -> Vec<u8> {
-    let mut b = Vec::new();
-    for i in 0..ch[0].len() {
-        for c in ch {
-            b.extend_from_slice(&c[i].to_le_bytes());
-        }
-    }
-    b
-}
-
-/// libsndfile encodes the interleaved 16-bit input (stdin) as `fmt`/`subtype`; prints the file (hex) and its decode.
-fn libsndfile_writes(input: &[Vec<i16>], rate: u32, format: &str, subtype: &str) -> (Vec<u8>, Vec<Vec<i64>>) {
-    let ch = input.len();
-    let v = py(
-        &format!(
-            "x = np.frombuffer(b, dtype='<i2').reshape(-1, {ch})\n\
-             f = io.BytesIO(); f.name = 'x.{ext}'\n\
-             sf.write(f, x, {rate}, format='{format}', subtype='{subtype}')\n\
-             data = f.getvalue(); f.seek(0)\n\
-             kw = dict(samplerate={rate}, channels={ch}, format='RAW', subtype='{subtype}') if '{format}' == 'RAW' else dict()\n\
-             y, _ = sf.read(io.BytesIO(data), dtype='int16', always_2d=True, **kw)\n\
-             print(json.dumps({{'file': data.hex(), 'y': y.T.tolist()}}))",
-            ext = if format == "RAW" { "vox" } else { "wav" },
-        ),
-        &interleaved_le(input),
-    );
-    let file = hex(v["file"].as_str().unwrap());
-    let y = v["y"].as_array().unwrap().iter().map(ints).collect();
-    (file, y)
-}
-
-fn hex(s: &str) -> Vec<u8> {
-    (0..s.len()).step_by(2).map(|i| u8::from_str_radix(&s[i..i + 2], 16).unwrap()).collect()
-}
-
-/// Asserts equality, reporting the first difference instead of both whole vectors.
-fn same(a: &[i64], b: &[i64], what: &str) {
-    assert_eq!(a.len(), b.len(), "{what}: lengths");
-    if let Some(i) = (0..a.len()).find(|&i| a[i] != b[i]) {
-        panic!(
-            "{what}: first difference at {i}: ours {} libsndfile {} (next: {:?} vs {:?})",
-            a[i],
-            b[i],
-            &a[i..(i + 5).min(a.len())],
-            &b[i..(i + 5).min(b.len())]
-        );
-    }
-}
-
-fn snr_db(x: &[i16], y: &[i64]) -> f64 {
-    let (mut s, mut n) = (0f64, 0f64);
-    for (a, b) in x.iter().zip(y) {
-        s += (*a as f64).powi(2);
-        n += (*a as f64 - *b as f64).powi(2);
-    }
-    10.0 * (s / n.max(1e-9)).log10()
 }
 
 /// Our MS ADPCM decoder gives libsndfile's decode of libsndfile's files exactly (mono 8 kHz, stereo 44.1 kHz: two
@@ -190,19 +121,6 @@ fn stage_output(params: &CodecParams, x: &[Vec<i16>]) -> Vec<Vec<i64>> {
             buf.iter().map(|&v| (v * 32768.0) as i64).collect()
         })
         .collect()
-}
-
-/// libsndfile's decode of a file we wrote (WAV, or raw VOX at `rate`).
-fn libsndfile_reads(file: &[u8], vox_rate: Option<u32>) -> Vec<Vec<i64>> {
-    let kw = match vox_rate {
-        Some(r) => format!("samplerate={r}, channels=1, format='RAW', subtype='VOX_ADPCM'"),
-        None => String::new(),
-    };
-    let v = py(
-        &format!("y, _ = sf.read(io.BytesIO(b), dtype='int16', always_2d=True, {kw})\nprint(json.dumps(y.T.tolist()))"),
-        file,
-    );
-    v.as_array().unwrap().iter().map(ints).collect()
 }
 
 /// One codec, one signal: our export's size is exact; libsndfile decodes it to exactly what the stage plays (and so

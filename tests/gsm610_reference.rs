@@ -7,28 +7,24 @@
 
 mod common;
 
-use serde_json::Value;
+use common::libsndfile::{same, snr_db};
+
+/// libsndfile writes a GSM 6.10 WAV of `x`; returns the file and its own decode of it.
+fn libsndfile_writes(x: &[i16]) -> (Vec<u8>, Vec<i64>) {
+    let (file, mut y) = common::libsndfile::libsndfile_writes(&[x.to_vec()], 8000, "WAV", "GSM610");
+    (file, y.swap_remove(0))
+}
+
+/// libsndfile decodes a WAV file; returns its samples as 16-bit values (one channel).
+fn libsndfile_reads(file: &[u8]) -> Vec<i64> {
+    common::libsndfile::libsndfile_reads(file, None).swap_remove(0)
+}
+
 use stairstep::codec::gsm610;
 use stairstep::io::{wav, ExportFormat, ExportMeta, SampleLoop, WavEncoding};
 use stairstep::stages::codec::{CodecName, CodecParams, CodecRoundTrip};
 use stairstep::stages::Stage;
 use stairstep::{Clip, Preset};
-
-/// Runs Python with `stdin`; the snippet prints one JSON value.
-fn py(code: &str, stdin: &[u8]) -> Value {
-    let prelude = "import sys, io, json, warnings\nwarnings.simplefilter('ignore')\nimport numpy as np\n\
-                   import soundfile as sf\nb = sys.stdin.buffer.read()\n";
-    let out = common::run_python(&format!("{prelude}{code}"), stdin);
-    serde_json::from_slice(&out).unwrap_or_else(|e| panic!("{e}: {}", String::from_utf8_lossy(&out)))
-}
-
-fn hex(s: &str) -> Vec<u8> {
-    (0..s.len()).step_by(2).map(|i| u8::from_str_radix(&s[i..i + 2], 16).unwrap()).collect()
-}
-
-fn ints(v: &Value) -> Vec<i64> {
-    v.as_array().expect("array").iter().map(|x| x.as_i64().expect("int")).collect()
-}
 
 /// Speech-like test signal: a voiced buzz with vibrato and a syllable envelope, unvoiced noise bursts, pauses with
 /// a little noise, and a few near-full-scale moments.
@@ -55,48 +51,6 @@ fn speechy(frames: usize, seed: u64) -> Vec<i16> {
             (s * loud).round().clamp(-32768.0, 32767.0) as i16
         })
         .collect()
-}
-
-/// libsndfile writes a GSM 6.10 WAV of `x`; returns the file and its own decode of it.
-fn libsndfile_writes(x: &[i16]) -> (Vec<u8>, Vec<i64>) {
-    let bytes: Vec<u8> = x.iter().flat_map(|s| s.to_le_bytes()).collect();
-    let v = py(
-        "x = np.frombuffer(b, dtype='<i2')\n\
-         f = io.BytesIO(); f.name = 'x.wav'\n\
-         sf.write(f, x, 8000, format='WAV', subtype='GSM610')\n\
-         data = f.getvalue()\n\
-         y, _ = sf.read(io.BytesIO(data), dtype='int16')\n\
-         print(json.dumps({'file': data.hex(), 'y': y.tolist()}))",
-        &bytes,
-    );
-    (hex(v["file"].as_str().unwrap()), ints(&v["y"]))
-}
-
-/// libsndfile decodes a WAV file; returns its samples as 16-bit values.
-fn libsndfile_reads(file: &[u8]) -> Vec<i64> {
-    let v = py("y, _ = sf.read(io.BytesIO(b), dtype='int16')\nprint(json.dumps(y.tolist()))", file);
-    ints(&v)
-}
-
-/// Asserts equality, reporting the first difference.
-fn same(a: &[i64], b: &[i64], what: &str) {
-    assert_eq!(a.len(), b.len(), "{what}: lengths");
-    if let Some(i) = (0..a.len()).find(|&i| a[i] != b[i]) {
-        panic!(
-            "{what}: first difference at {i}: {:?} vs {:?}",
-            &a[i..(i + 5).min(a.len())],
-            &b[i..(i + 5).min(b.len())]
-        );
-    }
-}
-
-fn snr_db(x: &[i16], y: &[i64]) -> f64 {
-    let (mut s, mut n) = (0f64, 0f64);
-    for (a, b) in x.iter().zip(y) {
-        s += (*a as f64).powi(2);
-        n += (*a as f64 - *b as f64).powi(2);
-    }
-    10.0 * (s / n.max(1e-9)).log10()
 }
 
 fn clip_of(x: &[i16]) -> Clip {

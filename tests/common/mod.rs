@@ -2,6 +2,7 @@
 #![allow(dead_code)]
 
 pub mod alloc;
+pub mod libsndfile;
 
 use std::io::Write;
 use std::path::PathBuf;
