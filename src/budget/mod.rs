@@ -252,7 +252,14 @@ pub struct Budget<'a> {
     preset: Preset,
     clip: &'a Clip,
     file_loop: Option<(u64, u64)>,
-    /// The chain input (after the preset's preparation) and its A-weighted energy.
+    input: InputFigures,
+}
+
+/// What a budget measures once on the chain input (the sound after the preset's preparation): its shape and its
+/// A-weighted energy. A caller that measures candidates one call at a time (the page's worker) keeps it and builds
+/// each [`Budget`] with [`Budget::with_input`], so the preparation and the input's FFT run once, not per candidate.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct InputFigures {
     channels: usize,
     source_rate: u32,
     duration_s: f64,
@@ -268,25 +275,40 @@ impl<'a> Budget<'a> {
         let r = render_with_loop(&bare, clip, file_loop)?;
         let input = r.input(clip);
         let input_a_energy = input.channels.iter().map(|c| a_weighted_energy(c, input.sample_rate)).sum();
-        Ok(Budget {
-            preset: preset.clone(),
-            clip,
-            file_loop,
+        let figures = InputFigures {
             channels: input.channel_count(),
             source_rate: input.sample_rate,
             duration_s: input.duration_s(),
             input_a_energy,
-        })
+        };
+        Ok(Budget { preset: preset.clone(), clip, file_loop, input: figures })
+    }
+
+    /// The budget of `preset` on `clip` with the input figures a [`Budget::new`] of the same preset (the same
+    /// preparation), clip and loop measured ([`Budget::input_figures`]).
+    pub fn with_input(
+        preset: &Preset,
+        clip: &'a Clip,
+        file_loop: Option<(u64, u64)>,
+        input: InputFigures,
+    ) -> Result<Self> {
+        preset.validate()?;
+        Ok(Budget { preset: preset.clone(), clip, file_loop, input })
+    }
+
+    /// The figures measured on the chain input, for [`Budget::with_input`].
+    pub fn input_figures(&self) -> InputFigures {
+        self.input
     }
 
     /// The source rate of the chain's input in Hz.
     pub fn source_rate(&self) -> u32 {
-        self.source_rate
+        self.input.source_rate
     }
 
     /// The duration of the chain's input in seconds.
     pub fn duration_s(&self) -> f64 {
-        self.duration_s
+        self.input.duration_s
     }
 
     /// Every candidate: each rate (the chain's own first, then the source rate and the ladder, highest first) with each export (the
@@ -295,11 +317,11 @@ impl<'a> Budget<'a> {
         let rate_at = self.preset.stages.iter().position(|s| !s.bypass && matches!(s.stage, StageSpec::Rate(_)));
         let (own_rate, own_mode) = match rate_at.map(|i| &self.preset.stages[i].stage) {
             Some(StageSpec::Rate(p)) => (p.rate_hz, p.mode),
-            _ => (self.source_rate, RateMode::Clean),
+            _ => (self.input.source_rate, RateMode::Clean),
         };
         let mut rates = vec![own_rate];
-        for r in std::iter::once(self.source_rate).chain(RATE_LADDER) {
-            if r <= self.source_rate && !rates.contains(&r) {
+        for r in std::iter::once(self.input.source_rate).chain(RATE_LADDER) {
+            if r <= self.input.source_rate && !rates.contains(&r) {
                 rates.push(r);
             }
         }
@@ -312,9 +334,10 @@ impl<'a> Budget<'a> {
         }
         let mut out = Vec::with_capacity(rates.len() * exports.len());
         for &rate in &rates {
-            for export in exports.iter().filter(|e| applies(e, rate, self.channels) || **e == self.preset.export) {
+            for export in exports.iter().filter(|e| applies(e, rate, self.input.channels) || **e == self.preset.export)
+            {
                 let mut p = self.preset.clone();
-                let mode = if rate == self.source_rate {
+                let mode = if rate == self.input.source_rate {
                     if let Some(i) = rate_at {
                         p.stages[i].bypass = true;
                     }
@@ -326,7 +349,7 @@ impl<'a> Budget<'a> {
                     }
                     Some(own_mode)
                 };
-                if let Some(stage) = hearing_stage(export, self.channels)? {
+                if let Some(stage) = hearing_stage(export, self.input.channels)? {
                     if p.active_stages().last() != Some(&stage) {
                         p.stages.push(StageSlot::from(stage));
                     }
@@ -362,16 +385,16 @@ impl<'a> Budget<'a> {
         let error_a: f64 =
             (0..input.channel_count()).map(|ch| a_weighted_energy(&r.error(self.clip, ch), input.sample_rate)).sum();
         let a_weighted_snr_db =
-            if error_a == 0.0 { -crate::db::FLOOR_DB } else { power_db(self.input_a_energy / error_a) };
+            if error_a == 0.0 { -crate::db::FLOOR_DB } else { power_db(self.input.input_a_energy / error_a) };
         let bandwidth_hz = match spec.rate_mode {
             Some(mode) => {
                 let p = RateParams { rate_hz: spec.rate_hz, mode };
-                let reducer = RateReducer::new(&p, self.source_rate, BLOCK)?;
+                let reducer = RateReducer::new(&p, self.input.source_rate, BLOCK)?;
                 reducer.cutoff_hz().unwrap_or(spec.rate_hz as f64 / 2.0).min(spec.rate_hz as f64 / 2.0)
             }
-            None => self.source_rate as f64 / 2.0,
+            None => self.input.source_rate as f64 / 2.0,
         };
-        let bytes_per_second = if self.duration_s > 0.0 { bytes as f64 / self.duration_s } else { 0.0 };
+        let bytes_per_second = if self.input.duration_s > 0.0 { bytes as f64 / self.input.duration_s } else { 0.0 };
         Ok(Candidate {
             id: spec.id.clone(),
             rate_hz: spec.rate_hz,

@@ -2,7 +2,7 @@
 
 use super::js_err;
 use crate::analysis::{envelope, SpectrumAnalyzer, Window};
-use crate::budget::{self, Budget, Candidate, Limit, Score};
+use crate::budget::{self, Budget, Candidate, InputFigures, Limit, Score};
 use crate::prep::PrepParams;
 use crate::render::{self, Render, Tap};
 use crate::{demo, io, Clip, Preset};
@@ -31,6 +31,9 @@ pub struct Session {
     tap: Option<Tap>,
     /// The loaded file's own loop (a WAV `smpl` or AIFF `INST` sustain loop), used as the CLI uses it.
     file_loop: Option<(u64, u64)>,
+    /// The budget's figures of the chain input for the preset (JSON) they were measured under: the page measures a
+    /// preset's candidates one call at a time, and the preparation and input FFT need run only once for all of them.
+    budget_input: Option<(String, InputFigures)>,
 }
 
 impl Default for Session {
@@ -55,6 +58,7 @@ impl Session {
             rendered_prep: PrepParams::default(),
             tap: None,
             file_loop: None,
+            budget_input: None,
         }
     }
 
@@ -83,12 +87,6 @@ impl Session {
     #[wasm_bindgen(js_name = loadDemo)]
     pub fn load_demo(&mut self, name: &str) -> Result<String, JsError> {
         self.set_source(demo::demo(name).map_err(js_err)?)
-    }
-
-    /// Loads a WAV file from its bytes; returns its description as JSON. On error the current sound stays.
-    #[wasm_bindgen(js_name = loadWav)]
-    pub fn load_wav(&mut self, bytes: &[u8]) -> Result<String, JsError> {
-        self.set_source(io::wav::read(bytes).map_err(js_err)?)
     }
 
     /// Loads a WAV or AIFF/AIFF-C file from its bytes with the core's own readers ([`io::read::read_own`], as the
@@ -120,6 +118,7 @@ impl Session {
         self.file_loop = None;
         self.render = None;
         self.tap = None;
+        self.budget_input = None;
         self.rendered_prep = PrepParams::default();
         self.input_changed();
         Ok(self.describe())
@@ -194,7 +193,9 @@ impl Session {
                 Ok(pick(if which == "tap" { &t.signal } else { &t.error }, ch))
             }
             ("output" | "error" | "tap" | "tap-error", None) => Err(JsError::new("nothing rendered yet")),
-            _ => Err(JsError::new(&format!("unknown signal {which:?}: source, input, output or error"))),
+            _ => {
+                Err(JsError::new(&format!("unknown signal {which:?}: source, input, output, error, tap or tap-error")))
+            }
         }
     }
 
@@ -203,14 +204,6 @@ impl Session {
     /// the tapped stage, and the error that stage alone adds, both at the source rate).
     pub fn samples(&self, which: &str, channel: usize) -> Result<Vec<f32>, JsError> {
         self.signal(which, channel).map(Cow::into_owned)
-    }
-
-    /// The audition error signal of one channel (clamped to the last): the latest render's output minus the chain's
-    /// input, aligned, as [`Render::error`] computes it (the input sanitised as the chain saw it: NaN as 0, ±Inf as
-    /// ±1). Throws before the first render. The same as `samples("error", channel)`.
-    #[wasm_bindgen(js_name = errorSignal)]
-    pub fn error_signal(&self, channel: usize) -> Result<Vec<f32>, JsError> {
-        self.samples("error", channel)
     }
 
     /// Welch spectrum in dBFS of all channels of `which` (at most [`SPECTRUM_FRAMES`] frames per channel, spread over
@@ -385,9 +378,9 @@ impl Session {
     /// order the CLI lists them. The page measures them one call at a time with [`Session::budget_measure`], so that
     /// its worker can report progress and stop between two.
     #[wasm_bindgen(js_name = budgetCandidates)]
-    pub fn budget_candidates(&self, preset: &str) -> Result<String, JsError> {
-        let preset = Preset::from_json(preset).map_err(js_err)?;
-        let b = Budget::new(&preset, &self.source, self.file_loop).map_err(js_err)?;
+    pub fn budget_candidates(&mut self, preset: &str) -> Result<String, JsError> {
+        let (parsed, figures) = self.budget_input(preset)?;
+        let b = Budget::with_input(&parsed, &self.source, self.file_loop, figures).map_err(js_err)?;
         let v = serde_json::json!({
             "source_rate": b.source_rate(),
             "duration_s": b.duration_s(),
@@ -400,9 +393,9 @@ impl Session {
     /// [`budget::Candidate`] as JSON. Throws, with the reason, for a candidate the sound cannot use (the CLI lists
     /// those as `skipped`).
     #[wasm_bindgen(js_name = budgetMeasure)]
-    pub fn budget_measure(&self, preset: &str, index: usize) -> Result<String, JsError> {
-        let preset = Preset::from_json(preset).map_err(js_err)?;
-        let b = Budget::new(&preset, &self.source, self.file_loop).map_err(js_err)?;
+    pub fn budget_measure(&mut self, preset: &str, index: usize) -> Result<String, JsError> {
+        let (parsed, figures) = self.budget_input(preset)?;
+        let b = Budget::with_input(&parsed, &self.source, self.file_loop, figures).map_err(js_err)?;
         let specs = b.candidates().map_err(js_err)?;
         let spec = specs.get(index).ok_or_else(|| JsError::new(&format!("no candidate {index}")))?;
         serde_json::to_string(&b.measure(spec).map_err(js_err)?).map_err(|e| JsError::new(&e.to_string()))
@@ -426,6 +419,20 @@ impl Session {
 }
 
 impl Session {
+    /// `preset` parsed, and the budget's input figures for it: measured by a [`Budget::new`] the first time, then
+    /// kept until another preset or sound comes.
+    fn budget_input(&mut self, preset: &str) -> Result<(Preset, InputFigures), JsError> {
+        let parsed = Preset::from_json(preset).map_err(js_err)?;
+        if let Some((key, figures)) = &self.budget_input {
+            if key == preset {
+                return Ok((parsed, *figures));
+            }
+        }
+        let figures = Budget::new(&parsed, &self.source, self.file_loop).map_err(js_err)?.input_figures();
+        self.budget_input = Some((preset.to_string(), figures));
+        Ok((parsed, figures))
+    }
+
     /// The chain's input changed (a new sound, or a render with other preparation settings): drops what was kept
     /// for it.
     fn input_changed(&mut self) {

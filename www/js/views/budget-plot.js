@@ -1,7 +1,7 @@
 // The format budget's size-quality plot: every candidate's score (dB) against its exact size (bytes, log scale), the
 // Pareto front as a line, the current export and the pick marked, the byte limit (or the kbit/s limit as bytes for
 // this sound's duration) as a dashed line.
-import { css, fitCanvas } from './plot.js';
+import { css, startPlot } from './plot.js';
 
 const EXACT_DB = 200; // an exact copy reads +240 dB: drawn just above the others, on an "exact" line
 
@@ -13,10 +13,7 @@ function niceBytes(b) {
 
 // `view`: { candidates, pareto, pick, score ('a_weighted_snr_db' | 'sqnr_db'), limitBytes (or null) }.
 export function drawBudgetPlot(canvas, view) {
-  const { w, h, dpr } = fitCanvas(canvas);
-  const g = canvas.getContext('2d');
-  g.fillStyle = css('--plot-bg');
-  g.fillRect(0, 0, w, h);
+  const { g, w, h, dpr } = startPlot(canvas);
   const cs = view?.candidates ?? [];
   if (!cs.length) return;
   const score = (c) => c[view.score];

@@ -4,7 +4,7 @@
 import { $ } from '../util.js';
 import { state } from '../state.js';
 import { call } from '../worker-client.js';
-import { css, fitCanvas } from './plot.js';
+import { css, fitCanvas, startPlot } from './plot.js';
 import { codesText } from './meters.js';
 
 const QUANTIZERS = ['quantize', 'g711', 'compand', 'minifloat'];
@@ -44,10 +44,7 @@ export function requestCodes() {
 export function drawCodes() {
   const c = $('codes');
   if (c.hidden) return;
-  const { w, h, dpr } = fitCanvas(c);
-  const g = c.getContext('2d');
-  g.fillStyle = css('--plot-bg');
-  g.fillRect(0, 0, w, h);
+  const { g, w, h, dpr } = startPlot(c);
   const d = ch.data;
   if (!d) return;
   const left = 44 * dpr;

@@ -10,3 +10,12 @@ export function fitCanvas(c) {
   if (c.width !== w || c.height !== h) { c.width = w; c.height = h; }
   return { w, h, dpr };
 }
+
+// A fresh plot: the canvas fitted to its box and filled with the plot background; its 2-D context and size.
+export function startPlot(c) {
+  const { w, h, dpr } = fitCanvas(c);
+  const g = c.getContext('2d');
+  g.fillStyle = css('--plot-bg');
+  g.fillRect(0, 0, w, h);
+  return { g, w, h, dpr };
+}

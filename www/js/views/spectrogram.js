@@ -11,7 +11,7 @@
 import { $ } from '../util.js';
 import { state, viewRange } from '../state.js';
 import { call } from '../worker-client.js';
-import { css, fitCanvas } from './plot.js';
+import { fitCanvas, startPlot } from './plot.js';
 import { KILN_RGBA, KILN_NAME, kilnCss } from './colormap.js';
 import { drawRuler, zoom, scroll, wholeView } from './waveform.js';
 
@@ -128,10 +128,7 @@ function ticks(d) {
 export function drawSpectrogram() {
   const c = $('spectrogram');
   if (c.hidden) return;
-  const { w, h, dpr } = fitCanvas(c);
-  const g = c.getContext('2d');
-  g.fillStyle = css('--plot-bg');
-  g.fillRect(0, 0, w, h);
+  const { g, w, h, dpr } = startPlot(c);
   const d = sg.data;
   if (!d || !state.info) return;
   const ruler = Math.round(RULER * dpr);

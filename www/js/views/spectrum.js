@@ -1,7 +1,7 @@
 // The spectrum view: processed and error spectra (Welch, dBFS) on a log frequency axis, with a pointer readout.
 import { $ } from '../util.js';
 import { state } from '../state.js';
-import { css, fitCanvas } from './plot.js';
+import { css, startPlot } from './plot.js';
 
 const SPEC = { top: 6, bottom: -168, fmin: 20 };
 function specX(f, w, nyq) { return (Math.log(f / SPEC.fmin) / Math.log(nyq / SPEC.fmin)) * w; }
@@ -9,10 +9,7 @@ function specY(db, h) { return ((SPEC.top - db) / (SPEC.top - SPEC.bottom)) * h;
 
 export function drawSpectrum() {
   const c = $('spectrum');
-  const { w, h, dpr } = fitCanvas(c);
-  const g = c.getContext('2d');
-  g.fillStyle = css('--plot-bg');
-  g.fillRect(0, 0, w, h);
+  const { g, w, h, dpr } = startPlot(c);
   if (!state.spectra || !state.info) return;
   const nyq = state.info.sampleRate / 2;
   g.font = `${11 * dpr}px system-ui, sans-serif`;

@@ -2,15 +2,12 @@
 import { $ } from '../util.js';
 import { state } from '../state.js';
 import { call } from '../worker-client.js';
-import { css, fitCanvas } from './plot.js';
+import { css, startPlot } from './plot.js';
 
 const SWEEP_SECONDS = 10;
 export function drawSweep() {
   const c = $('sweep');
-  const { w, h, dpr } = fitCanvas(c);
-  const g = c.getContext('2d');
-  g.fillStyle = css('--plot-bg');
-  g.fillRect(0, 0, w, h);
+  const { g, w, h, dpr } = startPlot(c);
   const pts = state.sweep;
   if (!pts) return;
   const top = 160;

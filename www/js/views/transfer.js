@@ -5,7 +5,7 @@
 import { $ } from '../util.js';
 import { state } from '../state.js';
 import { call } from '../worker-client.js';
-import { css, fitCanvas } from './plot.js';
+import { css, fitCanvas, startPlot } from './plot.js';
 
 export const tf = { lo: -1, hi: 1, data: null };
 window.stairstepTransfer = tf; // for tests and the curious
@@ -44,10 +44,7 @@ const fmt = (v, step) => {
 export function drawTransfer() {
   const c = $('transfer');
   if (c.hidden) return;
-  const { w, h, dpr } = fitCanvas(c);
-  const g = c.getContext('2d');
-  g.fillStyle = css('--plot-bg');
-  g.fillRect(0, 0, w, h);
+  const { g, w, h, dpr } = startPlot(c);
   const d = tf.data;
   if (!d) return;
   const left = 54 * dpr;

@@ -4,14 +4,11 @@ import { $, setStatus } from '../util.js';
 import { state, viewRange, waveColumns } from '../state.js';
 import { call } from '../worker-client.js';
 import { audio } from '../audition.js';
-import { css, fitCanvas } from './plot.js';
+import { css, startPlot } from './plot.js';
 
 export function drawWave() {
   const c = $('wave');
-  const { w, h, dpr } = fitCanvas(c);
-  const g = c.getContext('2d');
-  g.fillStyle = css('--plot-bg');
-  g.fillRect(0, 0, w, h);
+  const { g, w, h, dpr } = startPlot(c);
   if (!state.env) return;
   const { start, end } = viewRange();
   const ruler = Math.round(16 * dpr); // the time ruler along the bottom
