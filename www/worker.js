@@ -50,7 +50,6 @@ const handlers = {
   load(msg) {
     let info;
     if (msg.demo) info = session.loadDemo(msg.demo);
-    else if (msg.wav) info = session.loadWav(new Uint8Array(msg.wav));
     else if (msg.file) info = session.loadFile(new Uint8Array(msg.file), msg.maxSamples);
     else info = session.loadSamples(msg.sampleRate, msg.channels, msg.interleaved);
     const d = describe(info);
