@@ -1,5 +1,5 @@
 // Stairstep crusher: an AudioWorklet module with the DSP core (WebAssembly) inside; needs no other file.
-// stairstep-source-hash: d13eb945bc5b652d19282de40f24414ef84eb3abca6b76d3df5cfeae8bb28807
+// stairstep-source-hash: ebb2c49ea185eef35c462423d31cce460313b26c8046321f9f1281de70657748
 //   await ctx.audioWorklet.addModule('stairstep-worklet.js');
 //   const node = new AudioWorkletNode(ctx, 'stairstep-crusher', { outputChannelCount: [2],
 //     processorOptions: { preset: 'handheld' } });

@@ -43,9 +43,9 @@ function setupPanelDom() {
   const kind = el('select', { id: 'budget-limit-kind', 'aria-label': 'Unit of the limit', onchange: limitChanged },
     el('option', { value: 'none' }, 'no limit'), el('option', { value: 'max-bytes' }, 'bytes'),
     el('option', { value: 'max-kbps' }, 'kbit/s'));
-  const value = el('input', { id: 'budget-limit', type: 'number', min: '1', step: 'any', disabled: true,
-    placeholder: '—', onchange: limitChanged });
-  value.addEventListener('keydown', (e) => { if (e.key === 'Enter') limitChanged(); });
+  const value = el('input', { id: 'budget-limit', type: 'number', min: '1', step: 'any',
+    placeholder: '—', onchange: () => limitChanged(true) });
+  value.addEventListener('keydown', (e) => { if (e.key === 'Enter') limitChanged(true); });
   const score = el('select', { id: 'budget-score', onchange: () => { budget.score = score.value; updatePick(); } },
     el('option', { value: 'a_weighted_snr_db' }, 'A-weighted SNR'), el('option', { value: 'sqnr_db' }, 'SQNR'));
   panel.replaceChildren(
@@ -173,10 +173,11 @@ function show(key, result) {
   updatePick();
 }
 
-function limitChanged() {
-  const kind = $('budget-limit-kind').value;
+// typed: the number was typed (with no unit chosen yet, it is taken as bytes).
+function limitChanged(typed = false) {
   const box = $('budget-limit');
-  box.disabled = kind === 'none';
+  if (typed && box.value !== '' && $('budget-limit-kind').value === 'none') $('budget-limit-kind').value = 'max-bytes';
+  const kind = $('budget-limit-kind').value;
   const v = +box.value;
   const ok = kind === 'none' || (box.value !== '' && Number.isFinite(v) && v > 0);
   box.toggleAttribute('aria-invalid', !ok && box.value !== '');
